@@ -1,0 +1,49 @@
+"""Error and warning classes of profshape.
+
+Every error raised for bad input derives from :class:`InputDataError`, itself a
+:class:`ValueError`, so callers may catch either.
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "ConfigError",
+    "ConvergenceWarning",
+    "ForwardModelError",
+    "InputDataError",
+    "ProfshapeError",
+    "ProfshapeWarning",
+]
+
+
+class ProfshapeError(Exception):
+    """Base class of all profshape errors."""
+
+
+class InputDataError(ProfshapeError, ValueError):
+    """Bad input: data file, coefficient vector, bound or setting.
+
+    The message names the field (and file, row and column where there is one),
+    the value received and how to fix it.
+    """
+
+
+class ConfigError(InputDataError):
+    """Bad calibration file or settings (unknown key, wrong type, missing file)."""
+
+
+class ForwardModelError(ProfshapeError):
+    """A forward model could not be set up (not raised for a failed trial).
+
+    A trial that fails is recorded as a failed result with a reason; this error
+    is for problems that make every trial impossible, such as a missing
+    executable.
+    """
+
+
+class ProfshapeWarning(UserWarning):
+    """Base class of profshape warnings."""
+
+
+class ConvergenceWarning(ProfshapeWarning):
+    """A solver, fit or sampler did not meet its convergence test."""

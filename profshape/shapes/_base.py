@@ -1,0 +1,304 @@
+"""The shape-family base class: coefficients in, anomalous profile out."""
+
+from __future__ import annotations
+
+import copy
+import functools
+import math
+from abc import ABC, abstractmethod
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from ..exceptions import InputDataError
+from ..profile import AnomalousProfile, ProfileKind
+from ._xp import namespace_of, to_backend
+
+__all__ = ["Parameter", "ShapeFamily"]
+
+#: Relative slack allowed on bounds before a coefficient counts as outside them.
+_BOUND_SLACK = 1e-9
+
+
+@dataclass(frozen=True)
+class Parameter:
+    """One coefficient of a shape family.
+
+    Parameters
+    ----------
+    name : str
+        Identifier, e.g. ``"log10_inner_level"``; level parameters are log10 values.
+    lower, upper : float
+        Bounds in the parameter's own unit; ``lower < upper``.
+    unit : str
+        Unit of the parameter, e.g. ``"m"``, ``"log10(-)"`` or ``"log10(1/s)"``.
+    description : str, default=""
+        One line for reports.
+    """
+
+    name: str
+    lower: float
+    upper: float
+    unit: str
+    description: str = ""
+
+    def __post_init__(self) -> None:
+        lo, hi = float(self.lower), float(self.upper)
+        if not (math.isfinite(lo) and math.isfinite(hi)):
+            raise InputDataError(
+                f"bounds of {self.name!r} must be finite; got [{self.lower!r}, {self.upper!r}]."
+            )
+        if not lo < hi:
+            what = "zero-width" if lo == hi else "inverted"
+            raise InputDataError(
+                f"bounds of {self.name!r} are {what}: [{lo!r}, {hi!r}]; give lower < upper."
+            )
+        object.__setattr__(self, "lower", lo)
+        object.__setattr__(self, "upper", hi)
+
+
+class ShapeFamily(ABC):
+    """Base of all shape families.
+
+    A family maps a coefficient vector of length :attr:`n_coefficients` to an
+    anomalous profile along the axis z [m, from the anode], either a Bohm-like
+    coefficient (``kind == "bohm"``: a multiple of the local electron
+    cyclotron frequency) or an absolute frequency (``kind == "frequency"``, 1/s).
+
+    Subclasses set :attr:`name` and :attr:`kind`, pass their parameters to
+    ``__init__`` and implement :meth:`_log10_values` (or :meth:`_values`).
+
+    Notes
+    -----
+    Coefficients are always in the physical units of :attr:`units` (levels are
+    log10 values); the search works in the unit cube, see :meth:`to_unit`.
+    """
+
+    name: str = "shape"
+    kind: ProfileKind = "bohm"
+
+    def __init__(self, parameters: Sequence[Parameter]) -> None:
+        params = tuple(parameters)
+        names = [p.name for p in params]
+        if len(set(names)) != len(names):
+            raise InputDataError(f"{self.name}: parameter names must be unique; got {names}.")
+        if not params:
+            raise InputDataError(f"{self.name}: a family needs at least one parameter.")
+        self._parameters = params
+
+    # ------------------------------------------------------------------ metadata
+    @property
+    def parameters(self) -> tuple[Parameter, ...]:
+        """The family's parameters, in coefficient order."""
+        return self._parameters
+
+    @property
+    def names(self) -> tuple[str, ...]:
+        """Parameter names, in coefficient order."""
+        return tuple(p.name for p in self._parameters)
+
+    @property
+    def units(self) -> tuple[str, ...]:
+        """Parameter units, in coefficient order."""
+        return tuple(p.unit for p in self._parameters)
+
+    @property
+    def bounds(self) -> np.ndarray:
+        """Bounds of shape (n_coefficients, 2): columns lower, upper."""
+        return np.array([[p.lower, p.upper] for p in self._parameters], dtype=float)
+
+    @property
+    def n_coefficients(self) -> int:
+        """Number of coefficients d."""
+        return len(self._parameters)
+
+    def with_bounds(self, **bounds: tuple[float, float]) -> ShapeFamily:
+        """A copy with some bounds replaced, e.g. ``with_bounds(transition_z_m=(0.02, 0.03))``.
+
+        Raises
+        ------
+        InputDataError
+            For an unknown parameter name or invalid bounds.
+        """
+        new = copy.copy(self)
+        params = list(self._parameters)
+        for key, value in bounds.items():
+            if key not in self.names:
+                raise InputDataError(
+                    f"{self.name}: unknown parameter {key!r} in bounds; known: {list(self.names)}."
+                )
+            try:
+                lo, hi = (float(v) for v in value)
+            except (TypeError, ValueError):
+                raise InputDataError(
+                    f"{self.name}: bounds of {key!r} must be a pair (lower, upper); got {value!r}."
+                ) from None
+            i = self.names.index(key)
+            params[i] = Parameter(key, lo, hi, params[i].unit, params[i].description)
+        new._parameters = tuple(params)
+        return new
+
+    def describe(self) -> list[dict[str, Any]]:
+        """Parameters as a list of dicts (name, unit, lower, upper, description)."""
+        return [
+            {"name": p.name, "unit": p.unit, "lower": p.lower, "upper": p.upper,
+             "description": p.description}
+            for p in self._parameters
+        ]
+
+    def __repr__(self) -> str:
+        return f"{type(self).__name__}(names={self.names!r}, kind={self.kind!r})"
+
+    # ---------------------------------------------------------------- validation
+    def validate(self, coefficients: Any) -> np.ndarray:
+        """Check coefficients and return them as a float array.
+
+        Parameters
+        ----------
+        coefficients : array_like of shape (d,) or (n, d), or mapping of name to value
+            Coefficient vector(s) in physical units.
+
+        Returns
+        -------
+        ndarray of shape (d,) or (n, d)
+
+        Raises
+        ------
+        InputDataError
+            Wrong length, NaN or inf, or a value outside its bounds (the message
+            names the parameter, the value and the bounds).
+        """
+        if isinstance(coefficients, Mapping):
+            coefficients = self.coefficients_from_dict(coefficients)
+        xp = namespace_of(coefficients)
+        c = np.asarray(
+            coefficients.detach().cpu().numpy() if xp.is_torch else coefficients, dtype=float
+        )
+        if c.ndim not in (1, 2) or c.shape[-1] != self.n_coefficients:
+            raise InputDataError(
+                f"{self.name}: coefficients must have shape ({self.n_coefficients},) or "
+                f"(n, {self.n_coefficients}) for parameters {list(self.names)}; got shape "
+                f"{c.shape}."
+            )
+        c2 = np.atleast_2d(c)
+        bad = ~np.isfinite(c2)
+        if bad.any():
+            row, col = np.argwhere(bad)[0]
+            raise InputDataError(
+                f"{self.name}: coefficient {self.names[col]!r} is {c2[row, col]!r}"
+                + (f" (row {row})" if c.ndim == 2 else "")
+                + "; coefficients must be finite numbers."
+            )
+        b = self.bounds
+        slack = _BOUND_SLACK * (b[:, 1] - b[:, 0])
+        low = c2 < b[:, 0] - slack
+        high = c2 > b[:, 1] + slack
+        if (low | high).any():
+            row, col = np.argwhere(low | high)[0]
+            raise InputDataError(
+                f"{self.name}: coefficient {self.names[col]!r} = {c2[row, col]!r}"
+                + (f" (row {row})" if c.ndim == 2 else "")
+                + f" is outside its bounds [{b[col, 0]!r}, {b[col, 1]!r}] "
+                f"[{self.units[col]}]; give a value inside them or widen the bounds."
+            )
+        c2 = np.clip(c2, b[:, 0], b[:, 1])
+        return c2 if c.ndim == 2 else c2[0]
+
+    def coefficients_from_dict(self, values: Mapping[str, float]) -> np.ndarray:
+        """Coefficient vector from a name → value mapping (all names required)."""
+        missing = [n for n in self.names if n not in values]
+        extra = [k for k in values if k not in self.names]
+        if missing or extra:
+            raise InputDataError(
+                f"{self.name}: coefficients by name must give exactly {list(self.names)}; "
+                + (f"missing {missing}" if missing else "")
+                + ("; " if missing and extra else "")
+                + (f"unknown {extra}" if extra else "")
+                + "."
+            )
+        return np.array([float(values[n]) for n in self.names])
+
+    def coefficient_dict(self, coefficients: Any) -> dict[str, float]:
+        """Name → value mapping of one coefficient vector."""
+        c = self.validate(coefficients)
+        if c.ndim != 1:
+            raise InputDataError(f"{self.name}: coefficient_dict takes one vector; got {c.shape}.")
+        return {n: float(v) for n, v in zip(self.names, c, strict=True)}
+
+    # ---------------------------------------------------------------- unit cube
+    def to_unit(self, coefficients: Any) -> Any:
+        """Map coefficients (physical units) to the unit cube [0, 1]^d."""
+        xp = namespace_of(coefficients)
+        b = to_backend(self.bounds, coefficients)
+        return (coefficients - b[:, 0]) / (b[:, 1] - b[:, 0]) if xp.is_torch else (
+            (np.asarray(coefficients, dtype=float) - b[:, 0]) / (b[:, 1] - b[:, 0])
+        )
+
+    def from_unit(self, unit: Any) -> Any:
+        """Map unit-cube points to coefficients (physical units)."""
+        xp = namespace_of(unit)
+        b = to_backend(self.bounds, unit)
+        u = unit if xp.is_torch else np.asarray(unit, dtype=float)
+        return b[:, 0] + u * (b[:, 1] - b[:, 0])
+
+    def sample(self, n: int, seed: int | None = None) -> np.ndarray:
+        """``n`` coefficient vectors drawn uniformly within the bounds, shape (n, d)."""
+        rng = np.random.default_rng(seed)
+        return self.from_unit(rng.random((int(n), self.n_coefficients)))
+
+    # ---------------------------------------------------------------- evaluation
+    def evaluate(self, coefficients: Any, z_m: Any, *, validate: bool = True) -> Any:
+        """Profile values at axial positions.
+
+        Parameters
+        ----------
+        coefficients : array_like or torch.Tensor of shape (d,) or (n, d)
+            Coefficient vector(s) in physical units.
+        z_m : array_like or torch.Tensor of shape (n_z,)
+            Axial positions [m] from the anode.
+        validate : bool, default=True
+            Check the coefficients first (see :meth:`validate`).
+
+        Returns
+        -------
+        ndarray or torch.Tensor of shape (n_z,) or (n, n_z)
+            Bohm-like coefficient [-] or frequency [1/s], per :attr:`kind`;
+            a torch tensor when ``coefficients`` is one.
+        """
+        xp = namespace_of(coefficients)
+        if validate:
+            self.validate(coefficients)
+        c = coefficients if xp.is_torch else np.asarray(coefficients, dtype=float)
+        z = to_backend(np.asarray(z_m.detach().cpu().numpy() if namespace_of(z_m).is_torch
+                                  else z_m, dtype=float), c)
+        if z.ndim != 1:
+            raise InputDataError(f"z_m must be a 1-D array of positions [m]; got shape {z.shape}.")
+        single = c.ndim == 1
+        c2 = c[None, :] if single else c
+        out = self._values(c2, z, xp)
+        return out[0] if single else out
+
+    def _values(self, c: Any, z: Any, xp: Any) -> Any:
+        """Values for coefficients ``c`` (n, d) at ``z`` (n_z,) → (n, n_z)."""
+        return 10.0 ** self._log10_values(c, z, xp)
+
+    @abstractmethod
+    def _log10_values(self, c: Any, z: Any, xp: Any) -> Any:
+        """log10 of the profile for coefficients ``c`` (n, d) at ``z`` (n_z,) → (n, n_z)."""
+
+    def profile(self, coefficients: Any) -> AnomalousProfile:
+        """The :class:`~profshape.profile.AnomalousProfile` of one coefficient vector."""
+        c = self.validate(coefficients)
+        if c.ndim != 1:
+            raise InputDataError(f"{self.name}: profile takes one vector; got shape {c.shape}.")
+        func = functools.partial(_evaluate_unchecked, self, c)
+        return AnomalousProfile(
+            kind=self.kind, function=func, coefficients=self.coefficient_dict(c), family=self.name
+        )
+
+
+def _evaluate_unchecked(family: ShapeFamily, c: np.ndarray, z_m: np.ndarray) -> np.ndarray:
+    """Module-level (picklable) evaluation used by :meth:`ShapeFamily.profile`."""
+    return family.evaluate(c, z_m, validate=False)
