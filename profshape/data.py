@@ -1,0 +1,618 @@
+"""Measured data: ion-velocity profiles, scalar observables and operating points.
+
+File formats
+------------
+A data set is a folder of up to three tables, each as CSV (``.csv``) or
+parquet (``.parquet``), with these columns (units in the names):
+
+``operating_points``
+    ``label``, ``discharge_voltage_V``, ``anode_mass_flow_kg_s``,
+    ``propellant``, ``magnetic_field_scale``.
+``ion_velocity``
+    ``label``, ``z_m`` (axial position from the anode [m]),
+    ``ion_velocity_m_s`` [m/s], ``sigma_ion_velocity_m_s`` (1-sigma [m/s]),
+    optionally ``sigma_z_m`` (1-sigma position uncertainty [m]).
+``scalars``
+    ``label``, ``name`` (e.g. ``discharge_current``, ``thrust``), ``value``,
+    ``sigma`` (1-sigma), ``unit`` (SI: ``A``, ``N``, ...).
+
+A single point's ion-velocity file (as named by a calibration file) has the
+``ion_velocity`` columns without ``label``.
+
+Every problem is reported as an :class:`~profshape.exceptions.InputDataError`
+naming the file, the (1-based) data row and the column; nothing is dropped
+silently. Unsorted positions are sorted with a warning; duplicates are refused.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from collections.abc import Iterator, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from .exceptions import InputDataError, ProfshapeWarning
+from .operating_point import OperatingPoint
+
+__all__ = [
+    "SCALAR_UNITS",
+    "DataSet",
+    "IonVelocityProfile",
+    "OperatingPointData",
+    "ScalarObservable",
+    "load_dataset",
+    "read_ion_velocity_table",
+]
+
+#: SI units of the scalar observables the built-in solver predicts.
+SCALAR_UNITS: dict[str, str] = {
+    "discharge_current": "A",
+    "thrust": "N",
+    "specific_impulse": "s",
+    "anode_efficiency": "-",
+    "mass_utilization": "-",
+    "current_utilization": "-",
+    "voltage_utilization": "-",
+    "exit_ion_energy_eV": "eV",
+}
+
+_VELOCITY_COLUMNS = ("z_m", "ion_velocity_m_s", "sigma_ion_velocity_m_s")
+_OPTIONAL_VELOCITY_COLUMNS = ("sigma_z_m",)
+_POINT_COLUMNS = ("label", "discharge_voltage_V", "anode_mass_flow_kg_s", "propellant",
+                  "magnetic_field_scale")
+_SCALAR_COLUMNS = ("label", "name", "value", "sigma", "unit")
+
+#: Largest plausible axial position [m]; larger values are most likely millimetres.
+_MAX_PLAUSIBLE_Z_M = 1.0
+#: Ion velocities below this magnitude everywhere [m/s] look like km/s.
+_MIN_PLAUSIBLE_PEAK_VELOCITY_M_S = 100.0
+
+
+def _where(source: str, row: int | None = None, column: str | None = None) -> str:
+    parts = [source or "ion-velocity data"]
+    if row is not None:
+        parts.append(f"row {row}")
+    if column is not None:
+        parts.append(f"column {column!r}")
+    return ", ".join(parts)
+
+
+@dataclass(frozen=True, eq=False)
+class IonVelocityProfile:
+    """Axial ion-velocity measurements (e.g. from LIF) at one operating point.
+
+    Parameters
+    ----------
+    z_m : array_like of shape (n,)
+        Axial positions [m] from the anode.
+    velocity_m_s : array_like of shape (n,)
+        Measured mean axial ion velocity [m/s].
+    sigma_m_s : array_like of shape (n,)
+        1-sigma velocity uncertainty [m/s], > 0.
+    sigma_z_m : array_like of shape (n,), optional
+        1-sigma position uncertainty [m], >= 0.
+    source : str, default=""
+        Where the data came from (file name), used in messages.
+    rows : sequence of int, optional
+        1-based data rows in ``source`` of each point, used in messages.
+
+    Raises
+    ------
+    InputDataError
+        Empty, non-finite, sigma <= 0, duplicate positions, positions that look
+        like millimetres, velocities that look like km/s.
+
+    Warns
+    -----
+    ProfshapeWarning
+        When unsorted positions are sorted.
+    """
+
+    z_m: np.ndarray
+    velocity_m_s: np.ndarray
+    sigma_m_s: np.ndarray
+    sigma_z_m: np.ndarray | None = None
+    source: str = ""
+    rows: tuple[int, ...] | None = field(default=None, repr=False)
+
+    def __post_init__(self) -> None:
+        cols = {"z_m": self.z_m, "ion_velocity_m_s": self.velocity_m_s,
+                "sigma_ion_velocity_m_s": self.sigma_m_s}
+        if self.sigma_z_m is not None:
+            cols["sigma_z_m"] = self.sigma_z_m
+        arrays: dict[str, np.ndarray] = {}
+        for name, value in cols.items():
+            try:
+                a = np.asarray(value, dtype=float)
+            except (TypeError, ValueError):
+                raise InputDataError(
+                    f"{_where(self.source, column=name)}: values must be numbers."
+                ) from None
+            if a.ndim != 1:
+                raise InputDataError(
+                    f"{_where(self.source, column=name)}: expected a 1-D array; got shape {a.shape}."
+                )
+            arrays[name] = a
+        n = arrays["z_m"].size
+        if n == 0:
+            raise InputDataError(f"{_where(self.source)}: no ion-velocity points (empty set).")
+        for name, a in arrays.items():
+            if a.size != n:
+                raise InputDataError(
+                    f"{_where(self.source, column=name)}: has {a.size} values but z_m has {n}."
+                )
+        rows = tuple(self.rows) if self.rows is not None else tuple(range(1, n + 1))
+        for name, a in arrays.items():
+            bad = np.flatnonzero(~np.isfinite(a))
+            if bad.size:
+                i = bad[0]
+                raise InputDataError(
+                    f"{_where(self.source, rows[i], name)}: value {a[i]!r} is not finite; "
+                    "give a number (missing measurements must be removed, not left blank)."
+                )
+        for name in ("sigma_ion_velocity_m_s",):
+            bad = np.flatnonzero(arrays[name] <= 0)
+            if bad.size:
+                i = bad[0]
+                raise InputDataError(
+                    f"{_where(self.source, rows[i], name)}: uncertainty must be > 0; got "
+                    f"{arrays[name][i]!r} ({bad.size} value(s) <= 0 at rows "
+                    f"{[rows[j] for j in bad[:10]]})."
+                )
+        if "sigma_z_m" in arrays:
+            bad = np.flatnonzero(arrays["sigma_z_m"] < 0)
+            if bad.size:
+                i = bad[0]
+                raise InputDataError(
+                    f"{_where(self.source, rows[i], 'sigma_z_m')}: position uncertainty must "
+                    f"be >= 0; got {arrays['sigma_z_m'][i]!r}."
+                )
+        z = arrays["z_m"]
+        if np.max(np.abs(z)) > _MAX_PLAUSIBLE_Z_M:
+            i = int(np.argmax(np.abs(z)))
+            raise InputDataError(
+                f"{_where(self.source, rows[i], 'z_m')}: position {z[i]!r} looks like "
+                "millimetres; positions must be in metres (divide by 1000)."
+            )
+        if "sigma_z_m" in arrays and np.max(arrays["sigma_z_m"]) > 0.1:
+            i = int(np.argmax(arrays["sigma_z_m"]))
+            raise InputDataError(
+                f"{_where(self.source, rows[i], 'sigma_z_m')}: position uncertainty "
+                f"{arrays['sigma_z_m'][i]!r} looks like millimetres; give it in metres."
+            )
+        v = arrays["ion_velocity_m_s"]
+        if np.max(np.abs(v)) < _MIN_PLAUSIBLE_PEAK_VELOCITY_M_S:
+            raise InputDataError(
+                f"{_where(self.source, column='ion_velocity_m_s')}: all velocities are below "
+                f"{_MIN_PLAUSIBLE_PEAK_VELOCITY_M_S} m/s in magnitude, which looks like km/s; "
+                "velocities must be in m/s (multiply by 1000)."
+            )
+        order = np.argsort(z, kind="stable")
+        zs = z[order]
+        dup = np.flatnonzero(np.diff(zs) == 0)
+        if dup.size:
+            i, j = order[dup[0]], order[dup[0] + 1]
+            raise InputDataError(
+                f"{_where(self.source, rows[j], 'z_m')}: position {z[j]!r} m repeats row "
+                f"{rows[i]}; combine repeated measurements into one point or remove one."
+            )
+        if np.any(order != np.arange(n)):
+            warnings.warn(
+                f"{_where(self.source)}: positions were not in increasing order; sorted them.",
+                ProfshapeWarning,
+                stacklevel=3,
+            )
+            arrays = {k: a[order] for k, a in arrays.items()}
+            rows = tuple(rows[i] for i in order)
+        for name, attr in (("z_m", "z_m"), ("ion_velocity_m_s", "velocity_m_s"),
+                           ("sigma_ion_velocity_m_s", "sigma_m_s"), ("sigma_z_m", "sigma_z_m")):
+            if name in arrays:
+                arrays[name].setflags(write=False)
+                object.__setattr__(self, attr, arrays[name])
+        object.__setattr__(self, "rows", rows)
+
+    def __len__(self) -> int:
+        return int(self.z_m.size)
+
+    def check_domain(self, z_min_m: float, z_max_m: float) -> None:
+        """Raise if a position lies outside the model domain [z_min_m, z_max_m] [m]."""
+        outside = np.flatnonzero((self.z_m < z_min_m) | (self.z_m > z_max_m))
+        if outside.size:
+            i = outside[0]
+            raise InputDataError(
+                f"{_where(self.source, self.rows[i], 'z_m')}: position {self.z_m[i]!r} m is "
+                f"outside the model domain [{z_min_m!r}, {z_max_m!r}] m ({outside.size} "
+                "point(s)); remove those points or extend the model domain."
+            )
+
+    def to_frame(self) -> pd.DataFrame:
+        """The profile as a table with the documented column names."""
+        data: dict[str, Any] = {
+            "z_m": self.z_m,
+            "ion_velocity_m_s": self.velocity_m_s,
+            "sigma_ion_velocity_m_s": self.sigma_m_s,
+        }
+        if self.sigma_z_m is not None:
+            data["sigma_z_m"] = self.sigma_z_m
+        return pd.DataFrame(data)
+
+
+@dataclass(frozen=True)
+class ScalarObservable:
+    """A measured scalar, such as the discharge current.
+
+    Parameters
+    ----------
+    name : str
+        Observable name; names in :data:`SCALAR_UNITS` match the built-in
+        solver's outputs (``discharge_current`` [A], ``thrust`` [N], ...).
+    value : float
+        Measured value in SI units.
+    sigma : float
+        1-sigma uncertainty, > 0, same unit.
+    unit : str, optional
+        SI unit; defaults to the one in :data:`SCALAR_UNITS`. A known name with
+        a different unit is refused.
+    """
+
+    name: str
+    value: float
+    sigma: float
+    unit: str = ""
+
+    def __post_init__(self) -> None:
+        name = str(self.name).strip()
+        if not name or not name.replace("_", "").isalnum():
+            raise InputDataError(
+                f"scalar observable: name must be a word (letters, digits, _); got {self.name!r}."
+            )
+        object.__setattr__(self, "name", name)
+        for attr in ("value", "sigma"):
+            raw = getattr(self, attr)
+            try:
+                v = float(raw)
+            except (TypeError, ValueError):
+                raise InputDataError(f"scalar {name!r}: {attr} must be a number; got {raw!r}.") from None
+            if not math.isfinite(v):
+                raise InputDataError(f"scalar {name!r}: {attr} must be finite; got {raw!r}.")
+            object.__setattr__(self, attr, v)
+        if self.sigma <= 0:
+            raise InputDataError(f"scalar {name!r}: sigma must be > 0; got {self.sigma!r}.")
+        expected = SCALAR_UNITS.get(name)
+        unit = str(self.unit).strip()
+        if expected is not None:
+            if unit and unit != expected:
+                raise InputDataError(
+                    f"scalar {name!r}: unit must be {expected!r} (SI); got {unit!r}. "
+                    "Convert the value (e.g. mN to N: divide by 1000)."
+                )
+            unit = expected
+        object.__setattr__(self, "unit", unit or "-")
+
+
+@dataclass(frozen=True)
+class OperatingPointData:
+    """One operating point with its measurements.
+
+    Parameters
+    ----------
+    point : OperatingPoint
+    ion_velocity : IonVelocityProfile, optional
+    scalars : mapping of name to ScalarObservable, optional
+    """
+
+    point: OperatingPoint
+    ion_velocity: IonVelocityProfile | None = None
+    scalars: Mapping[str, ScalarObservable] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        if not isinstance(self.point, OperatingPoint):
+            raise InputDataError(
+                f"OperatingPointData.point must be an OperatingPoint; got {type(self.point).__name__}."
+            )
+        scalars = dict(self.scalars)
+        for key, obs in scalars.items():
+            if not isinstance(obs, ScalarObservable) or obs.name != key:
+                raise InputDataError(
+                    f"operating point {self.point.label!r}: scalars must map each name to a "
+                    f"ScalarObservable of that name; got {key!r} → {obs!r}."
+                )
+        object.__setattr__(self, "scalars", scalars)
+        if self.ion_velocity is None and not scalars:
+            raise InputDataError(
+                f"operating point {self.point.label!r} has no measurements; give an ion-velocity "
+                "profile or at least one scalar observable."
+            )
+
+    @property
+    def label(self) -> str:
+        """The operating point's label."""
+        return self.point.label
+
+    @property
+    def n_data(self) -> int:
+        """Number of measured values at this point."""
+        n = len(self.ion_velocity) if self.ion_velocity is not None else 0
+        return n + len(self.scalars)
+
+
+class DataSet(Sequence[OperatingPointData]):
+    """One or several operating points, each with its measurements.
+
+    Parameters
+    ----------
+    points : sequence of OperatingPointData
+        Non-empty, unique labels.
+    """
+
+    def __init__(self, points: Sequence[OperatingPointData]) -> None:
+        pts = list(points)
+        if not pts:
+            raise InputDataError("data set is empty: give at least one operating point.")
+        labels = [p.label for p in pts]
+        dup = sorted({lab for lab in labels if labels.count(lab) > 1})
+        if dup:
+            raise InputDataError(f"data set: operating-point labels must be unique; repeated {dup}.")
+        self._points = pts
+
+    def __getitem__(self, key: int | str) -> OperatingPointData:  # type: ignore[override]
+        if isinstance(key, str):
+            for p in self._points:
+                if p.label == key:
+                    return p
+            raise KeyError(f"no operating point labelled {key!r}; labels: {self.labels}")
+        return self._points[key]
+
+    def __len__(self) -> int:
+        return len(self._points)
+
+    def __iter__(self) -> Iterator[OperatingPointData]:
+        return iter(self._points)
+
+    def __repr__(self) -> str:
+        return f"DataSet(labels={self.labels!r}, n_data={self.n_data})"
+
+    @property
+    def labels(self) -> list[str]:
+        """Operating-point labels, in order."""
+        return [p.label for p in self._points]
+
+    @property
+    def operating_points(self) -> list[OperatingPoint]:
+        """The operating points, in order."""
+        return [p.point for p in self._points]
+
+    @property
+    def n_data(self) -> int:
+        """Total number of measured values."""
+        return sum(p.n_data for p in self._points)
+
+    def check_domain(self, z_min_m: float, z_max_m: float) -> None:
+        """Raise if any ion-velocity position is outside [z_min_m, z_max_m] [m]."""
+        for p in self._points:
+            if p.ion_velocity is not None:
+                p.ion_velocity.check_domain(z_min_m, z_max_m)
+
+    # ------------------------------------------------------------------ tables
+    def tables(self) -> dict[str, pd.DataFrame]:
+        """The three documented tables: operating_points, ion_velocity, scalars."""
+        ops = pd.DataFrame([p.point.to_dict() for p in self._points], columns=list(_POINT_COLUMNS))
+        vel = [p.ion_velocity.to_frame().assign(label=p.label) for p in self._points
+               if p.ion_velocity is not None]
+        vel_df = (pd.concat(vel, ignore_index=True) if vel
+                  else pd.DataFrame(columns=["label", *_VELOCITY_COLUMNS]))
+        vel_df = vel_df[["label", *[c for c in vel_df.columns if c != "label"]]]
+        sca = pd.DataFrame(
+            [{"label": p.label, "name": s.name, "value": s.value, "sigma": s.sigma, "unit": s.unit}
+             for p in self._points for s in p.scalars.values()],
+            columns=list(_SCALAR_COLUMNS),
+        )
+        return {"operating_points": ops, "ion_velocity": vel_df, "scalars": sca}
+
+    def save(self, folder: str | Path, format: str = "csv") -> dict[str, Path]:
+        """Write the tables into ``folder`` as CSV or parquet; returns the paths.
+
+        Parameters
+        ----------
+        folder : path
+            Created if missing.
+        format : {"csv", "parquet"}, default="csv"
+        """
+        if format not in ("csv", "parquet"):
+            raise InputDataError(f"format must be 'csv' or 'parquet'; got {format!r}.")
+        folder = Path(folder)
+        folder.mkdir(parents=True, exist_ok=True)
+        paths = {}
+        for name, df in self.tables().items():
+            path = folder / f"{name}.{format}"
+            if format == "csv":
+                df.to_csv(path, index=False)
+            else:
+                df.to_parquet(path, index=False)
+            paths[name] = path
+        return paths
+
+
+# ---------------------------------------------------------------------- reading
+def _read_table(path: Path) -> pd.DataFrame:
+    if not path.exists():
+        raise InputDataError(f"{path}: file not found.")
+    try:
+        if path.suffix.lower() == ".parquet":
+            df = pd.read_parquet(path)
+        elif path.suffix.lower() == ".csv":
+            df = pd.read_csv(path, skipinitialspace=True, comment="#")
+        else:
+            raise InputDataError(f"{path}: unknown file type {path.suffix!r}; use .csv or .parquet.")
+    except pd.errors.EmptyDataError:
+        raise InputDataError(f"{path}: file is empty; expected a header row and data.") from None
+    except (pd.errors.ParserError, UnicodeDecodeError, OSError) as exc:
+        raise InputDataError(f"{path}: cannot be read as a table: {exc}".strip()) from None
+    except InputDataError:
+        raise
+    except Exception as exc:  # pyarrow raises its own types for corrupt files
+        raise InputDataError(f"{path}: cannot be read: {type(exc).__name__}: {exc}") from None
+    df.columns = [str(c).strip() for c in df.columns]
+    return df
+
+
+def _check_columns(df: pd.DataFrame, path: Path | str, required: Sequence[str],
+                   optional: Sequence[str] = ()) -> None:
+    cols = list(df.columns)
+    missing = [c for c in required if c not in cols]
+    unknown = [c for c in cols if c not in required and c not in optional]
+    hint = ""
+    if any("mm" in c.lower() for c in cols):
+        hint = " A column name mentions millimetres: give positions in metres (z_m)."
+    if missing:
+        raise InputDataError(
+            f"{path}: missing column(s) {missing}; expected {list(required)}"
+            + (f" (optional {list(optional)})" if optional else "")
+            + f", found {cols}.{hint}"
+        )
+    if unknown:
+        raise InputDataError(
+            f"{path}: unknown column(s) {unknown}; expected {list(required)}"
+            + (f" (optional {list(optional)})" if optional else "")
+            + f".{hint} Remove or rename them (nothing is dropped silently)."
+        )
+    if df.empty:
+        raise InputDataError(f"{path}: no data rows (empty set).")
+
+
+def _numeric(df: pd.DataFrame, column: str, path: Path | str) -> np.ndarray:
+    values = pd.to_numeric(df[column], errors="coerce")
+    bad = values.isna() & df[column].notna()
+    if bad.any():
+        i = int(np.flatnonzero(bad.to_numpy())[0])
+        raise InputDataError(
+            f"{path}, row {i + 1}, column {column!r}: {df[column].iloc[i]!r} is not a number."
+        )
+    return values.to_numpy(dtype=float)
+
+
+def _velocity_from_frame(df: pd.DataFrame, source: str, rows: Sequence[int]) -> IonVelocityProfile:
+    sigma_z = _numeric(df, "sigma_z_m", source) if "sigma_z_m" in df.columns else None
+    return IonVelocityProfile(
+        z_m=_numeric(df, "z_m", source),
+        velocity_m_s=_numeric(df, "ion_velocity_m_s", source),
+        sigma_m_s=_numeric(df, "sigma_ion_velocity_m_s", source),
+        sigma_z_m=sigma_z,
+        source=source,
+        rows=tuple(rows),
+    )
+
+
+def read_ion_velocity_table(path: str | Path) -> IonVelocityProfile:
+    """Read one operating point's ion-velocity file (CSV or parquet).
+
+    Columns: ``z_m``, ``ion_velocity_m_s``, ``sigma_ion_velocity_m_s`` and
+    optionally ``sigma_z_m`` (see the module docstring).
+    """
+    path = Path(path)
+    df = _read_table(path)
+    _check_columns(df, path, _VELOCITY_COLUMNS, _OPTIONAL_VELOCITY_COLUMNS)
+    return _velocity_from_frame(df, str(path), range(1, len(df) + 1))
+
+
+def _find(folder: Path, stem: str) -> Path | None:
+    for suffix in (".csv", ".parquet"):
+        p = folder / f"{stem}{suffix}"
+        if p.exists():
+            return p
+    return None
+
+
+def load_dataset(folder: str | Path) -> DataSet:
+    """Load a data set folder (see the module docstring for the tables).
+
+    Parameters
+    ----------
+    folder : path
+        Holds ``operating_points`` and at least one of ``ion_velocity`` and
+        ``scalars``, each as ``.csv`` or ``.parquet``.
+
+    Raises
+    ------
+    InputDataError
+        Naming the file, row and column of the first problem found.
+    """
+    folder = Path(folder)
+    if not folder.is_dir():
+        raise InputDataError(f"{folder}: data set folder not found.")
+    op_path = _find(folder, "operating_points")
+    if op_path is None:
+        raise InputDataError(
+            f"{folder}: no operating_points.csv or operating_points.parquet; every data set "
+            "needs its operating points."
+        )
+    ops = _read_table(op_path)
+    _check_columns(ops, op_path, _POINT_COLUMNS)
+    points: dict[str, OperatingPoint] = {}
+    for i, row in enumerate(ops.to_dict("records"), start=1):
+        try:
+            p = OperatingPoint(
+                label=str(row["label"]),
+                discharge_voltage_V=row["discharge_voltage_V"],
+                anode_mass_flow_kg_s=row["anode_mass_flow_kg_s"],
+                propellant=str(row["propellant"]),
+                magnetic_field_scale=row["magnetic_field_scale"],
+            )
+        except InputDataError as exc:
+            raise InputDataError(f"{op_path}, row {i}: {exc}") from None
+        if p.label in points:
+            raise InputDataError(f"{op_path}, row {i}, column 'label': label {p.label!r} repeats.")
+        points[p.label] = p
+
+    velocities: dict[str, IonVelocityProfile] = {}
+    vel_path = _find(folder, "ion_velocity")
+    if vel_path is not None:
+        vel = _read_table(vel_path)
+        _check_columns(vel, vel_path, ("label", *_VELOCITY_COLUMNS), _OPTIONAL_VELOCITY_COLUMNS)
+        vel["label"] = vel["label"].astype(str).str.strip()
+        for label, group in vel.groupby("label", sort=False):
+            if label not in points:
+                row = int(group.index[0]) + 1
+                raise InputDataError(
+                    f"{vel_path}, row {row}, column 'label': {label!r} is not an operating point "
+                    f"in {op_path.name} (known: {list(points)})."
+                )
+            velocities[label] = _velocity_from_frame(group, str(vel_path), group.index + 1)
+
+    scalars: dict[str, dict[str, ScalarObservable]] = {lab: {} for lab in points}
+    sca_path = _find(folder, "scalars")
+    if sca_path is not None:
+        sca = _read_table(sca_path)
+        _check_columns(sca, sca_path, _SCALAR_COLUMNS)
+        for i, row in enumerate(sca.to_dict("records"), start=1):
+            label = str(row["label"]).strip()
+            if label not in points:
+                raise InputDataError(
+                    f"{sca_path}, row {i}, column 'label': {label!r} is not an operating point "
+                    f"(known: {list(points)})."
+                )
+            unit = "" if pd.isna(row["unit"]) else str(row["unit"])
+            try:
+                obs = ScalarObservable(str(row["name"]), row["value"], row["sigma"], unit)
+            except InputDataError as exc:
+                raise InputDataError(f"{sca_path}, row {i}: {exc}") from None
+            if obs.name in scalars[label]:
+                raise InputDataError(
+                    f"{sca_path}, row {i}, column 'name': {obs.name!r} repeats for {label!r}."
+                )
+            scalars[label][obs.name] = obs
+    if vel_path is None and sca_path is None:
+        raise InputDataError(
+            f"{folder}: no measurements; add ion_velocity.csv and/or scalars.csv."
+        )
+    try:
+        return DataSet([
+            OperatingPointData(points[lab], velocities.get(lab), scalars[lab]) for lab in points
+        ])
+    except InputDataError as exc:
+        raise InputDataError(f"{folder}: {exc}") from None

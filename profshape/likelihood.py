@@ -1,0 +1,242 @@
+r"""Gaussian likelihood and reduced chi-square of predictions against data.
+
+For each measured ion velocity :math:`u_i \pm \sigma_i` at :math:`z_i \pm
+\sigma_{z,i}` the model :math:`\hat u(z)` is interpolated linearly to
+:math:`z_i` and the residual is judged against the effective variance
+
+.. math::
+
+    s_i^2 = \sigma_i^2 + \left(\frac{d\hat u}{dz}\right)^2_{z_i} \sigma_{z,i}^2
+            + \sigma_\mathrm{d}^2,
+
+(position uncertainty propagated through the model's local slope, the
+"effective variance" method of Orear, Am. J. Phys. 50, 1982; plus an optional
+model-discrepancy variance :math:`\sigma_\mathrm{d}^2`). Scalars are judged
+the same way against their own sigma (plus an optional relative discrepancy).
+With per-observable weights :math:`w`,
+
+.. math::
+
+    \ln L = \sum_i w_i \left[-\tfrac12 \frac{r_i^2}{s_i^2}
+            - \tfrac12 \ln(2\pi s_i^2)\right], \qquad
+    \chi^2 = \sum_i w_i \frac{r_i^2}{s_i^2}, \qquad
+    \chi^2_\nu = \frac{\chi^2}{n - p},
+
+summed over operating points, with :math:`n` the number of measured values
+and :math:`p` the number of fitted coefficients (0 unless given).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .data import DataSet, OperatingPointData
+from .exceptions import InputDataError
+from .forward.base import Prediction
+
+__all__ = ["LikelihoodSettings", "Misfit", "evaluate_misfit"]
+
+_LOG_2PI = math.log(2.0 * math.pi)
+
+
+@dataclass(frozen=True)
+class LikelihoodSettings:
+    """How predictions are judged against the data.
+
+    Parameters
+    ----------
+    discrepancy_sigma_m_s : float, default=0.0
+        Model-discrepancy standard deviation [m/s] added in quadrature to each
+        ion-velocity uncertainty.
+    scalar_discrepancy_relative : float, default=0.0
+        Model discrepancy of scalars as a fraction of the measured value.
+    weights : mapping of str to float, optional
+        Weight per observable, keyed by observable name (``"ion_velocity"``,
+        ``"discharge_current"``, ...) or by ``"label/observable"``; default 1.
+    use_position_uncertainty : bool, default=True
+        Propagate ``sigma_z_m`` through the model's local slope.
+    n_fitted : int, default=0
+        Number of fitted coefficients p in the reduced chi-square n - p.
+    """
+
+    discrepancy_sigma_m_s: float = 0.0
+    scalar_discrepancy_relative: float = 0.0
+    weights: Mapping[str, float] = field(default_factory=dict)
+    use_position_uncertainty: bool = True
+    n_fitted: int = 0
+
+    def __post_init__(self) -> None:
+        for name in ("discrepancy_sigma_m_s", "scalar_discrepancy_relative"):
+            v = getattr(self, name)
+            if not (isinstance(v, (int, float)) and math.isfinite(v) and v >= 0):
+                raise InputDataError(f"likelihood: {name} must be a finite number >= 0; got {v!r}.")
+        w = dict(self.weights)
+        for key, v in w.items():
+            if not (isinstance(v, (int, float)) and math.isfinite(v) and v >= 0):
+                raise InputDataError(
+                    f"likelihood: weight for {key!r} must be a finite number >= 0; got {v!r}."
+                )
+        object.__setattr__(self, "weights", w)
+        if int(self.n_fitted) != self.n_fitted or self.n_fitted < 0:
+            raise InputDataError(f"likelihood: n_fitted must be an integer >= 0; got {self.n_fitted!r}.")
+
+    def weight(self, label: str, observable: str) -> float:
+        """Weight of ``observable`` at operating point ``label``."""
+        return float(self.weights.get(f"{label}/{observable}", self.weights.get(observable, 1.0)))
+
+
+@dataclass(frozen=True)
+class Misfit:
+    """The misfit of one trial (all operating points).
+
+    Attributes
+    ----------
+    ok : bool
+        False when a prediction failed or could not be compared; then
+        ``chi2`` and ``reduced_chi2`` are +inf and ``log_likelihood`` is -inf,
+        and they must not be used as numbers: check ``ok`` first.
+    reason : str
+        Why the misfit could not be computed (empty when ok).
+    log_likelihood : float
+        Gaussian log-likelihood ln L.
+    chi2 : float
+        Weighted chi-square.
+    n_data : int
+        Number of measured values compared.
+    reduced_chi2 : float
+        chi2 / (n_data - n_fitted).
+    per_point : dict of str to float
+        Chi-square per operating point.
+    per_observable : dict of str to float
+        Chi-square per ``"label/observable"``.
+    """
+
+    ok: bool
+    reason: str = ""
+    log_likelihood: float = -math.inf
+    chi2: float = math.inf
+    n_data: int = 0
+    reduced_chi2: float = math.inf
+    per_point: dict[str, float] = field(default_factory=dict)
+    per_observable: dict[str, float] = field(default_factory=dict)
+
+    @classmethod
+    def failure(cls, reason: str, n_data: int = 0) -> Misfit:
+        """A misfit that could not be computed."""
+        return cls(ok=False, reason=reason, n_data=n_data)
+
+
+def _gaussian_terms(residual: np.ndarray, variance: np.ndarray, weight: float) -> tuple[float, float]:
+    chi2 = float(weight * np.sum(residual**2 / variance))
+    loglike = float(weight * np.sum(-0.5 * residual**2 / variance - 0.5 * (_LOG_2PI + np.log(variance))))
+    return chi2, loglike
+
+
+def _velocity_terms(
+    data: OperatingPointData, prediction: Prediction, settings: LikelihoodSettings
+) -> tuple[np.ndarray, np.ndarray] | str:
+    """Residuals and effective variances of the ion velocity, or a failure reason."""
+    meas = data.ion_velocity
+    assert meas is not None
+    if prediction.z_m is None or prediction.ion_velocity_m_s is None:
+        return "the forward model gave no ion-velocity prediction"
+    zg, ug = prediction.z_m, prediction.ion_velocity_m_s
+    lo, hi = zg[0], zg[-1]
+    tol = 1e-9 * max(abs(hi - lo), 1e-12)
+    if meas.z_m[0] < lo - tol or meas.z_m[-1] > hi + tol:
+        return (f"prediction covers z in [{lo:.6g}, {hi:.6g}] m but measurements span "
+                f"[{meas.z_m[0]:.6g}, {meas.z_m[-1]:.6g}] m")
+    model = np.interp(meas.z_m, zg, ug)
+    variance = meas.sigma_m_s**2 + settings.discrepancy_sigma_m_s**2
+    if settings.use_position_uncertainty and meas.sigma_z_m is not None:
+        slope = np.interp(meas.z_m, zg, np.gradient(ug, zg))
+        variance = variance + slope**2 * meas.sigma_z_m**2
+    return meas.velocity_m_s - model, variance
+
+
+def evaluate_misfit(
+    dataset: DataSet,
+    predictions: Mapping[str, Prediction],
+    settings: LikelihoodSettings | None = None,
+    *,
+    discrepancy_sigma_m_s: float | None = None,
+) -> Misfit:
+    """Compare predictions with a data set.
+
+    Parameters
+    ----------
+    dataset : DataSet
+    predictions : mapping of label to Prediction
+        One prediction per operating point of ``dataset``.
+    settings : LikelihoodSettings, optional
+    discrepancy_sigma_m_s : float, optional
+        Overrides ``settings.discrepancy_sigma_m_s`` (for a fitted discrepancy).
+
+    Returns
+    -------
+    Misfit
+        ``ok=False`` with a reason if any prediction failed, is missing, lacks
+        an observed quantity, or does not cover the measured positions.
+    """
+    settings = settings or LikelihoodSettings()
+    if discrepancy_sigma_m_s is not None:
+        if not (math.isfinite(discrepancy_sigma_m_s) and discrepancy_sigma_m_s >= 0):
+            return Misfit.failure(f"discrepancy_sigma_m_s must be finite and >= 0; got "
+                                  f"{discrepancy_sigma_m_s!r}", dataset.n_data)
+        settings = LikelihoodSettings(
+            discrepancy_sigma_m_s=float(discrepancy_sigma_m_s),
+            scalar_discrepancy_relative=settings.scalar_discrepancy_relative,
+            weights=settings.weights,
+            use_position_uncertainty=settings.use_position_uncertainty,
+            n_fitted=settings.n_fitted,
+        )
+    chi2_total = 0.0
+    loglike_total = 0.0
+    per_point: dict[str, float] = {}
+    per_observable: dict[str, float] = {}
+    n_data = dataset.n_data
+    for data in dataset:
+        label = data.label
+        pred = predictions.get(label)
+        if pred is None:
+            return Misfit.failure(f"point {label}: no prediction", n_data)
+        if not pred.ok:
+            return Misfit.failure(f"point {label}: {pred.status}: {pred.reason}", n_data)
+        point_chi2 = 0.0
+        if data.ion_velocity is not None:
+            terms = _velocity_terms(data, pred, settings)
+            if isinstance(terms, str):
+                return Misfit.failure(f"point {label}: {terms}", n_data)
+            c2, ll = _gaussian_terms(*terms, settings.weight(label, "ion_velocity"))
+            per_observable[f"{label}/ion_velocity"] = c2
+            point_chi2 += c2
+            loglike_total += ll
+        for name, obs in data.scalars.items():
+            if name not in pred.scalars:
+                return Misfit.failure(
+                    f"point {label}: the forward model gave no {name!r} prediction "
+                    f"(it gave {sorted(pred.scalars)})", n_data)
+            residual = np.array([obs.value - pred.scalars[name]])
+            variance = np.array([obs.sigma**2 + (settings.scalar_discrepancy_relative * obs.value) ** 2])
+            c2, ll = _gaussian_terms(residual, variance, settings.weight(label, name))
+            per_observable[f"{label}/{name}"] = c2
+            point_chi2 += c2
+            loglike_total += ll
+        per_point[label] = point_chi2
+        chi2_total += point_chi2
+    dof = max(n_data - int(settings.n_fitted), 1)
+    if not (math.isfinite(chi2_total) and math.isfinite(loglike_total)):
+        return Misfit.failure("misfit is not finite", n_data)
+    return Misfit(
+        ok=True,
+        log_likelihood=loglike_total,
+        chi2=chi2_total,
+        n_data=n_data,
+        reduced_chi2=chi2_total / dof,
+        per_point=per_point,
+        per_observable=per_observable,
+    )

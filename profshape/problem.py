@@ -1,0 +1,281 @@
+"""A calibration problem: shape family + data + forward model + likelihood."""
+
+from __future__ import annotations
+
+import functools
+import math
+import time
+from collections.abc import Callable, Mapping
+from concurrent.futures import Executor
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from .data import DataSet
+from .exceptions import InputDataError
+from .forward.base import ForwardModel, Prediction
+from .likelihood import LikelihoodSettings, Misfit, evaluate_misfit
+from .profile import AnomalousProfile
+from .shapes import Parameter, ShapeFamily
+
+__all__ = ["CalibrationProblem", "TrialOutcome"]
+
+SCALE_PREFIX = "log10_scale__"
+DISCREPANCY_NAME = "log10_discrepancy_sigma_m_s"
+
+
+def _scaled(function: Callable[[np.ndarray], np.ndarray], factor: float, z: np.ndarray) -> np.ndarray:
+    return factor * np.asarray(function(z), dtype=float)
+
+
+@dataclass(frozen=True, eq=False)
+class TrialOutcome:
+    """The result of evaluating one coefficient vector.
+
+    Attributes
+    ----------
+    status : {"ok", "failed", "timeout", "not_converged"}
+        ``"ok"`` only when every operating point ran and the misfit is finite.
+    reason : str
+        Why the trial failed (empty when ok).
+    misfit : Misfit
+    predictions : dict of label to Prediction
+    coefficients : ndarray of shape (d,)
+        The coefficients evaluated (physical units, full search space).
+    wall_time_s : float
+        Wall time of the whole trial [s].
+    """
+
+    status: str
+    reason: str
+    misfit: Misfit
+    predictions: dict[str, Prediction] = field(default_factory=dict)
+    coefficients: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    wall_time_s: float = 0.0
+
+    @property
+    def ok(self) -> bool:
+        """True when the trial gave a usable misfit."""
+        return self.status == "ok"
+
+
+class CalibrationProblem:
+    """What is calibrated against what.
+
+    The search space is the shape family's coefficients, followed by one
+    ``log10_scale__<label>`` per operating point when
+    ``free_scale_per_point`` (the same shape, scaled per point), and by
+    ``log10_discrepancy_sigma_m_s`` when ``discrepancy_bounds_m_s`` is given
+    (a fitted model-discrepancy standard deviation).
+
+    Parameters
+    ----------
+    family : ShapeFamily
+    dataset : DataSet
+    forward_model : ForwardModel
+    likelihood : LikelihoodSettings, optional
+    free_scale_per_point : bool, default=False
+    scale_bounds_log10 : (float, float), default=(-1.0, 1.0)
+        Bounds of each per-point log10 scale.
+    discrepancy_bounds_m_s : (float, float), optional
+        Bounds [m/s] of a fitted discrepancy sigma, searched in log10.
+
+    Raises
+    ------
+    InputDataError
+        If measurement positions fall outside the forward model's grid.
+    """
+
+    def __init__(
+        self,
+        family: ShapeFamily,
+        dataset: DataSet,
+        forward_model: ForwardModel,
+        likelihood: LikelihoodSettings | None = None,
+        free_scale_per_point: bool = False,
+        scale_bounds_log10: tuple[float, float] = (-1.0, 1.0),
+        discrepancy_bounds_m_s: tuple[float, float] | None = None,
+    ) -> None:
+        if not isinstance(family, ShapeFamily):
+            raise InputDataError(f"family must be a ShapeFamily; got {type(family).__name__}.")
+        if not isinstance(dataset, DataSet):
+            raise InputDataError(f"dataset must be a DataSet; got {type(dataset).__name__}.")
+        if not isinstance(forward_model, ForwardModel):
+            raise InputDataError(
+                f"forward_model must be a ForwardModel; got {type(forward_model).__name__} "
+                "(wrap a function with profshape.forward.CallableModel)."
+            )
+        self.family = family
+        self.dataset = dataset
+        self.forward_model = forward_model
+        self.likelihood = likelihood or LikelihoodSettings()
+        self.free_scale_per_point = bool(free_scale_per_point)
+        extra: list[Parameter] = []
+        if self.free_scale_per_point:
+            extra += [Parameter(f"{SCALE_PREFIX}{lab}", *scale_bounds_log10, "log10(-)",
+                                f"log10 of the profile factor at {lab}") for lab in dataset.labels]
+        self.fit_discrepancy = discrepancy_bounds_m_s is not None
+        if discrepancy_bounds_m_s is not None:
+            lo, hi = (float(v) for v in discrepancy_bounds_m_s)
+            if not (0 < lo < hi and math.isfinite(hi)):
+                raise InputDataError(
+                    f"discrepancy_bounds_m_s must satisfy 0 < lower < upper [m/s]; got "
+                    f"{discrepancy_bounds_m_s!r}."
+                )
+            extra.append(Parameter(DISCREPANCY_NAME, math.log10(lo), math.log10(hi),
+                                   "log10(m/s)", "model-discrepancy sigma of the ion velocity"))
+        self._extra = tuple(extra)
+        for point in dataset.operating_points:
+            grid = forward_model.grid(point)
+            velocity = dataset[point.label].ion_velocity
+            if grid is not None and len(grid) > 1 and velocity is not None:
+                velocity.check_domain(float(np.min(grid)), float(np.max(grid)))
+
+    # -------------------------------------------------------------- the space
+    @property
+    def parameters(self) -> tuple[Parameter, ...]:
+        """All searched parameters: family, then per-point scales, then discrepancy."""
+        return tuple(self.family.parameters) + self._extra
+
+    @property
+    def names(self) -> tuple[str, ...]:
+        """Names of all searched parameters."""
+        return tuple(p.name for p in self.parameters)
+
+    @property
+    def units(self) -> tuple[str, ...]:
+        """Units of all searched parameters."""
+        return tuple(p.unit for p in self.parameters)
+
+    @property
+    def bounds(self) -> np.ndarray:
+        """Bounds of shape (dim, 2)."""
+        return np.array([[p.lower, p.upper] for p in self.parameters], dtype=float)
+
+    @property
+    def dim(self) -> int:
+        """Dimension of the search space."""
+        return len(self.parameters)
+
+    def to_unit(self, coefficients: Any) -> np.ndarray:
+        """Coefficients (physical units) → unit cube."""
+        b = self.bounds
+        return (np.asarray(coefficients, dtype=float) - b[:, 0]) / (b[:, 1] - b[:, 0])
+
+    def from_unit(self, unit: Any) -> np.ndarray:
+        """Unit cube → coefficients (physical units)."""
+        b = self.bounds
+        return b[:, 0] + np.asarray(unit, dtype=float) * (b[:, 1] - b[:, 0])
+
+    def validate(self, coefficients: Any) -> np.ndarray:
+        """Check a full coefficient vector (or a name → value mapping); see ShapeFamily.validate."""
+        if isinstance(coefficients, Mapping):
+            missing = [n for n in self.names if n not in coefficients]
+            extra = [k for k in coefficients if k not in self.names]
+            if missing or extra:
+                raise InputDataError(
+                    f"coefficients by name must give exactly {list(self.names)}; "
+                    f"missing {missing}, unknown {extra}."
+                )
+            coefficients = [float(coefficients[n]) for n in self.names]
+        c = np.asarray(coefficients, dtype=float)
+        if c.shape != (self.dim,):
+            raise InputDataError(
+                f"coefficients must have shape ({self.dim},) for {list(self.names)}; got {c.shape}."
+            )
+        d = self.family.n_coefficients
+        shape_part = self.family.validate(c[:d])
+        if self._extra:
+            b = self.bounds[d:]
+            rest = c[d:]
+            for i, p in enumerate(self._extra):
+                if not math.isfinite(rest[i]):
+                    raise InputDataError(f"coefficient {p.name!r} is {rest[i]!r}; give a number.")
+                span = b[i, 1] - b[i, 0]
+                if rest[i] < b[i, 0] - 1e-9 * span or rest[i] > b[i, 1] + 1e-9 * span:
+                    raise InputDataError(
+                        f"coefficient {p.name!r} = {rest[i]!r} is outside its bounds "
+                        f"[{b[i, 0]!r}, {b[i, 1]!r}] [{p.unit}]."
+                    )
+            rest = np.clip(rest, b[:, 0], b[:, 1])
+            return np.concatenate([shape_part, rest])
+        return shape_part
+
+    def coefficient_dict(self, coefficients: Any) -> dict[str, float]:
+        """Name → value mapping of a full coefficient vector."""
+        c = self.validate(coefficients)
+        return {n: float(v) for n, v in zip(self.names, c, strict=True)}
+
+    # ------------------------------------------------------------ profiles
+    def profile_for(self, coefficients: Any, label: str) -> AnomalousProfile:
+        """The profile run at operating point ``label`` (with its scale, if free)."""
+        c = self.validate(coefficients)
+        d = self.family.n_coefficients
+        base = self.family.profile(c[:d])
+        if not self.free_scale_per_point:
+            return base
+        idx = self.names.index(f"{SCALE_PREFIX}{label}")
+        factor = 10.0 ** c[idx]
+        return AnomalousProfile(
+            kind=base.kind,
+            function=functools.partial(_scaled, base.function, factor),
+            coefficients={**base.coefficients, f"{SCALE_PREFIX}{label}": float(c[idx])},
+            family=base.family,
+        )
+
+    def discrepancy_sigma_m_s(self, coefficients: Any) -> float:
+        """The ion-velocity discrepancy sigma [m/s] for these coefficients."""
+        if not self.fit_discrepancy:
+            return self.likelihood.discrepancy_sigma_m_s
+        return float(10.0 ** np.asarray(coefficients, dtype=float)[self.names.index(DISCREPANCY_NAME)])
+
+    # ------------------------------------------------------------ evaluate
+    def run_points(
+        self, coefficients: Any, executor: Executor | None = None
+    ) -> dict[str, Prediction]:
+        """Run the forward model at every operating point (in parallel on ``executor``)."""
+        c = self.validate(coefficients)
+        profiles = {lab: self.profile_for(c, lab) for lab in self.dataset.labels}
+        points = {p.label: p for p in self.dataset.operating_points}
+        if executor is None:
+            return {lab: self.forward_model(profiles[lab], points[lab]) for lab in profiles}
+        futures = {lab: executor.submit(self.forward_model, profiles[lab], points[lab])
+                   for lab in profiles}
+        out: dict[str, Prediction] = {}
+        for lab, fut in futures.items():
+            try:
+                out[lab] = fut.result()
+            except Exception as exc:  # worker died, pickling failed, ...
+                out[lab] = Prediction.failure("failed", f"executor: {type(exc).__name__}: {exc}")
+        return out
+
+    def outcome(self, coefficients: Any, predictions: Mapping[str, Prediction],
+                wall_time_s: float = 0.0) -> TrialOutcome:
+        """Judge given predictions (one per point) as a trial outcome."""
+        c = np.asarray(coefficients, dtype=float)
+        preds = dict(predictions)
+        failed = [(lab, p) for lab, p in preds.items() if not p.ok]
+        if failed:
+            status = failed[0][1].status
+            reason = "; ".join(f"point {lab}: {p.status}: {p.reason}" for lab, p in failed)
+            return TrialOutcome(status, reason, Misfit.failure(reason, self.dataset.n_data),
+                                preds, c, wall_time_s)
+        misfit = evaluate_misfit(self.dataset, preds, self.likelihood,
+                                 discrepancy_sigma_m_s=self.discrepancy_sigma_m_s(c)
+                                 if self.fit_discrepancy else None)
+        if not misfit.ok:
+            return TrialOutcome("failed", misfit.reason, misfit, preds, c, wall_time_s)
+        return TrialOutcome("ok", "", misfit, preds, c, wall_time_s)
+
+    def evaluate(self, coefficients: Any, executor: Executor | None = None) -> TrialOutcome:
+        """Run one trial: every operating point, then the misfit.
+
+        Never raises for a failed forward run (that is a ``TrialOutcome`` with
+        a status and reason); raises :class:`InputDataError` for invalid
+        coefficients.
+        """
+        start = time.perf_counter()
+        c = self.validate(coefficients)
+        preds = self.run_points(c, executor)
+        return self.outcome(c, preds, time.perf_counter() - start)
