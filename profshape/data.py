@@ -498,6 +498,8 @@ def _numeric(df: pd.DataFrame, column: str, path: Path | str) -> np.ndarray:
 
 def _velocity_from_frame(df: pd.DataFrame, source: str, rows: Sequence[int]) -> IonVelocityProfile:
     sigma_z = _numeric(df, "sigma_z_m", source) if "sigma_z_m" in df.columns else None
+    if sigma_z is not None and np.all(np.isnan(sigma_z)):
+        sigma_z = None  # a point without position uncertainties in a long table
     return IonVelocityProfile(
         z_m=_numeric(df, "z_m", source),
         velocity_m_s=_numeric(df, "ion_velocity_m_s", source),
