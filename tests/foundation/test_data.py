@@ -175,7 +175,7 @@ def test_scalar_checks():
 def test_operating_point_checks():
     with pytest.raises(InputDataError, match=r"anode_mass_flow_kg_s.*> 0"):
         OperatingPoint("a", 300.0, -1e-6)
-    with pytest.raises(InputDataError, match="implausibly large.*kg/s"):
+    with pytest.raises(InputDataError, match=r"implausibly large.*kg/s"):
         OperatingPoint("a", 300.0, 5.0)
     with pytest.raises(InputDataError, match="unknown propellant"):
         OperatingPoint("a", 300.0, 5e-6, "neon-ish")
