@@ -1,0 +1,436 @@
+"""The 1-D quasi-neutral fluid discharge model and its time march.
+
+Model
+-----
+Axial coordinate z from the anode (z = 0) to the cathode plane
+(z = ``domain_length_m``), annular cross-section A, uniform cells.
+
+Neutrals (density n_n, fixed drift speed u_n = sqrt(8 k T_a / (pi M)), the
+mean thermal speed at the anode temperature)::
+
+    dn_n/dt + d(n_n u_n)/dz = -n_e n_n k_iz(T_e)
+
+fed at the anode by the mass flow plus the ions recombining there.
+
+Ions (singly charged, cold, density n_i = n_e, flux n_i u_i)::
+
+    dn_i/dt + d(n_i u_i)/dz = n_e n_n k_iz
+    d(n_i u_i)/dt + d(n_i u_i^2)/dz = (e/M) n_i E + n_e n_n k_iz u_n
+
+with a Bohm-speed outflow (u_i <= -sqrt(e T_e / M)) into the anode and free
+outflow at the cathode plane.
+
+Electrons (quasi-neutral, massless; generalized Ohm's law across B)::
+
+    n_e u_e = -mu_perp (n_e E + d(n_e T_e)/dz),
+    mu_perp = (e / (m_e nu)) / (1 + (omega_ce/nu)^2),
+    nu = nu_en + nu_ei + nu_wall + nu_anom
+
+with nu_en = n_n k_en, nu_ei from the NRL Plasma Formulary, nu_anom from the
+anomalous profile (Bohm-like coefficient times omega_ce, or a frequency) and
+nu_wall the rate of electron collection by the channel walls (inside the
+channel only, see below). Current continuity makes
+j = e n (u_i - u_e) uniform in z; integrating E between anode (potential
+V_d) and cathode plane (potential 0) gives j, hence the discharge current
+I_d = j A, and E(z).
+
+Electron energy (T_e in eV)::
+
+    d(3/2 n_e T_e)/dt + d/dz(5/2 n_e u_e T_e - kappa dT_e/dz)
+        = -n_e u_e E - n_e n_n (k_iz E_iz + k_ex E_ex) - W_wall
+
+with kappa = 5/2 n_e T_e mu_perp. Wall losses inside the channel follow the
+floating-sheath model with secondary electron emission of Hobbs and Wesson
+(Plasma Physics 9, 85, 1967), as used for Hall-thruster channels by e.g.
+Barral et al. (Phys. Plasmas 10, 4137, 2003): ions reach the two walls at the
+Bohm speed with the pre-sheath density 0.61 n_e, so the electron collection
+frequency is nu_wall = 1.22 c_s / ((r_o - r_i)(1 - sigma)), and each
+collected electron removes 2 T_e + (1 - sigma) phi_s with
+phi_s = T_e ln((1 - sigma) sqrt(M / (2 pi m_e))), sigma the effective
+secondary yield (``SolverSettings.wall_secondary_yield``).
+
+Boundary conditions for T_e: at the cathode plane T_e equals
+``Device.cathode_electron_temperature_eV`` (Dirichlet, half a cell beyond the
+last cell centre); at the anode the conductive heat flux is zero and
+electrons leave with their enthalpy flux 5/2 n_e u_e T_e.
+
+Numerics: first-order finite volumes; Rusanov fluxes for ions (time step from
+a Courant number on |u_i| + c_s), upwind neutrals with an implicit ionization
+sink, backward-Euler electron energy (one tridiagonal solve per step). The
+state is marched to a statistically steady state: after ``min_time_s`` the
+run is split into windows of ``window_s``; it stops when the last
+``n_average_windows`` windows agree in discharge current and exit ion
+velocity within ``tolerance`` and the heavy-particle balance closes within
+``mass_tolerance``. Results are time averages over those windows.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+import time
+
+import numpy as np
+import pandas as pd
+from scipy import constants
+
+from ..exceptions import InputDataError
+from ..operating_point import OperatingPoint
+from ..profile import AnomalousProfile, electron_gyrofrequency
+from . import _kernels
+from .device import Device
+from .magnetic import TabulatedField
+from .rates import _supported, rate_set
+from .results import SolverResult
+from .settings import SolverSettings
+
+__all__ = ["grid", "solve"]
+
+_STATUS_TEXT = {
+    _kernels.NONFINITE_CURRENT: "discharge current",
+    _kernels.NONFINITE_TEMPERATURE: "electron temperature",
+    _kernels.NONFINITE_DENSITY: "plasma density",
+    _kernels.NONFINITE_ION_FLUX: "ion flux",
+    _kernels.TIME_STEP_COLLAPSE: "time step (collapsed below 1e-15 s)",
+}
+
+
+def grid(device: Device, settings: SolverSettings | None = None) -> np.ndarray:
+    """Cell centres of the solver grid [m] from the anode, shape (n_cells,).
+
+    Parameters
+    ----------
+    device : Device
+        Sets the domain length.
+    settings : SolverSettings, optional
+        Sets ``n_cells`` (default settings if omitted).
+    """
+    settings = SolverSettings() if settings is None else settings
+    dz = device.domain_length_m / settings.n_cells
+    return (np.arange(settings.n_cells) + 0.5) * dz
+
+
+def _check_inputs(device: object, point: object, profile: object, settings: object) -> None:
+    if not isinstance(device, Device):
+        raise InputDataError(f"device must be a profshape.solver.Device; got {type(device).__name__}.")
+    if not isinstance(point, OperatingPoint):
+        raise InputDataError(
+            f"point must be a profshape.OperatingPoint; got {type(point).__name__}."
+        )
+    if not isinstance(profile, AnomalousProfile):
+        raise InputDataError(
+            f"profile must be a profshape.AnomalousProfile; got {type(profile).__name__}."
+        )
+    if not isinstance(settings, SolverSettings):
+        raise InputDataError(
+            f"settings must be a SolverSettings; got {type(settings).__name__}."
+        )
+
+
+def _failed(reason: str, z: np.ndarray | None, t0: float, extra: dict | None = None) -> SolverResult:
+    g: dict[str, float | bool | str] = {
+        "status": "failed",
+        "converged": False,
+        "reason": reason,
+        "wall_time_s": time.perf_counter() - t0,
+    }
+    if extra:
+        g.update(extra)
+    cells = pd.DataFrame({"z_m": z}) if z is not None else pd.DataFrame()
+    return SolverResult("failed", reason, cells, g)
+
+
+def _initial_state(z, device, gamma_in, u_n, v_max):
+    lch = device.channel_length_m
+    s = 0.5 * (1.0 + np.tanh((z - 0.8 * lch) / (0.15 * lch)))
+    nn = gamma_in / u_n * (1.0 - 0.9 * s)
+    ni = 2e17 + 6e17 * np.exp(-(((z - 0.8 * lch) / (0.4 * lch)) ** 2))
+    ui = -1500.0 + (0.8 * v_max + 1500.0) * s
+    te = 4.0 + 16.0 * np.exp(-(((z - lch) / (0.3 * lch)) ** 2))
+    return nn, ni, ni * ui, te
+
+
+def _dominant_frequency(samples: np.ndarray, dt: float) -> tuple[float, float]:
+    """Standard deviation [A] and dominant frequency [Hz] of a current history."""
+    if samples.size < 8:
+        return 0.0, 0.0
+    x = samples - samples.mean()
+    std = float(x.std())
+    if std <= 2e-3 * abs(float(samples.mean())):
+        return std, 0.0
+    n_fft = 8 * int(2 ** math.ceil(math.log2(x.size)))
+    spec = np.abs(np.fft.rfft(x * np.hanning(x.size), n=n_fft))
+    freqs = np.fft.rfftfreq(n_fft, d=dt)
+    min_f = 1.0 / (x.size * dt)  # ignore components slower than the window
+    spec[freqs < min_f] = 0.0
+    return std, float(freqs[int(np.argmax(spec))])
+
+
+def solve(
+    device: Device,
+    point: OperatingPoint,
+    profile: AnomalousProfile,
+    settings: SolverSettings | None = None,
+) -> SolverResult:
+    """Solve the discharge for one operating point and anomalous profile.
+
+    Parameters
+    ----------
+    device : Device
+        Geometry, magnetic field and boundary temperatures.
+    point : OperatingPoint
+        Discharge voltage [V], anode mass flow [kg/s], propellant, field scale.
+    profile : AnomalousProfile
+        Anomalous collision frequency profile along z [m from the anode].
+    settings : SolverSettings, optional
+        Grid and time-march settings (defaults if omitted).
+
+    Returns
+    -------
+    SolverResult
+        Status ``"ok"`` (converged; all outputs finite), ``"not_converged"``
+        (finite averages, convergence test failed) or ``"failed"`` (diverged,
+        or the profile gave unusable values), with a reason.
+
+    Raises
+    ------
+    InputDataError
+        For invalid configuration only (wrong types, unsupported propellant,
+        a tabulated field that does not span the grid). A valid configuration
+        never raises.
+    """
+    t0 = time.perf_counter()
+    settings = SolverSettings() if settings is None else settings
+    _check_inputs(device, point, profile, settings)
+    prop = _supported(point.propellant)
+    z = grid(device, settings)
+    field = device.magnetic_field
+    if isinstance(field, TabulatedField) and not field.covers(
+        np.array([0.0, device.domain_length_m])
+    ):
+        raise InputDataError(
+            f"device.magnetic_field.z_m spans [{field.z_m[0]!r}, {field.z_m[-1]!r}] m but the "
+            f"solver grid spans [0, {device.domain_length_m!r}] m; give B_T from the anode "
+            "to the cathode plane."
+        )
+    b = np.asarray(field(z), dtype=float) * point.magnetic_field_scale
+    try:
+        return _solve(device, point, profile, settings, prop, z, b, t0)
+    except Exception as exc:  # a valid configuration never raises: report instead
+        return _failed(f"internal error: {type(exc).__name__}: {exc}", z, t0)
+
+
+def _solve(device, point, profile, settings, prop, z, b, t0) -> SolverResult:
+    n = z.size
+    try:
+        nu_anom = np.asarray(profile.frequency(z, b), dtype=float)
+    except Exception as exc:
+        return _failed(f"the anomalous profile raised {type(exc).__name__}: {exc}", z, t0)
+    if nu_anom.shape != (n,):
+        nu_anom = np.broadcast_to(nu_anom, (n,)).copy() if nu_anom.size == 1 else None
+        if nu_anom is None:
+            return _failed(f"the anomalous profile returned shape != ({n},)", z, t0)
+    if not np.all(np.isfinite(nu_anom)) or np.any(nu_anom < 0.0):
+        bad = int(np.flatnonzero(~np.isfinite(nu_anom) | (nu_anom < 0.0))[0])
+        return _failed(
+            f"the anomalous profile is negative or non-finite at z = {z[bad]:.4g} m "
+            f"({nu_anom[bad]!r} 1/s)",
+            z,
+            t0,
+        )
+    nu_anom = np.ascontiguousarray(nu_anom)
+
+    mass = prop.mass_kg
+    area = device.channel_area_m2
+    mdot = point.anode_mass_flow_kg_s
+    v_d = point.discharge_voltage_V
+    u_n = math.sqrt(8.0 * constants.k * device.anode_temperature_K / (math.pi * mass))
+    gamma_in = mdot / (mass * area)
+    v_max = prop.max_ion_velocity(v_d)
+    omega_ce = np.ascontiguousarray(electron_gyrofrequency(b))
+    wall_mask = (z < device.channel_length_m).astype(float)
+    sigma = settings.wall_secondary_yield
+    wall_nu_factor = settings.wall_loss_scale * 1.22 / (device.channel_width_m * (1.0 - sigma))
+    phi_over_te = max(math.log((1.0 - sigma) * math.sqrt(mass / (2.0 * math.pi * constants.m_e))), 0.0)
+    wall_loss_per_te = 2.0 + (1.0 - sigma) * phi_over_te
+    rates = rate_set(prop.name)
+    dz = device.domain_length_m / n
+
+    nn, ni, gi, te = _initial_state(z, device, gamma_in, u_n, v_max)
+    n_samples = int(settings.window_s / settings.sample_interval_s) + 4
+    windows: list[dict] = []
+    t = 0.0
+    steps_total = 0
+    converged = False
+    reason = ""
+    k = settings.n_average_windows
+    while t < settings.max_time_s * (1.0 - 1e-12):
+        t_end = min(t + settings.window_s, settings.max_time_s)
+        acc = np.zeros((10, n))
+        acc_g = np.zeros(8)
+        samples = np.zeros(n_samples)
+        status, steps, t_new, hits, n_samp, bad = _kernels.march(
+            nn, ni, gi, te, dz, area, mass, u_n, gamma_in, v_d,
+            device.cathode_electron_temperature_eV, omega_ce, nu_anom, wall_mask,
+            wall_nu_factor, wall_loss_per_te, rates.t0_eV, 1.0 / rates.dt_eV,
+            rates.ionization_m3_s, rates.energy_loss_eV_m3_s, rates.momentum_m3_s,
+            settings.density_floor_m3, settings.electron_temperature_floor_eV,
+            settings.electron_temperature_ceiling_eV, settings.cfl, settings.max_time_step_s,
+            t, t_end, settings.sample_interval_s, acc, acc_g, samples,
+        )  # fmt: skip
+        steps_total += steps
+        if status != _kernels.OK:
+            what = _STATUS_TEXT.get(status, f"status {status}")
+            return _failed(
+                f"{what} diverged (non-finite) at t = {t_new:.4g} s, step {steps_total}, "
+                f"near z = {z[bad]:.4g} m",
+                z,
+                t0,
+                {"simulated_time_s": t_new, "n_steps": steps_total},
+            )
+        windows.append(
+            {"acc": acc, "g": acc_g, "samples": samples[:n_samp], "hits": hits, "steps": steps}
+        )
+        t = t_new
+        if t >= settings.min_time_s + k * settings.window_s * (1.0 - 1e-9):
+            ok, reason = _convergence(windows[-k - 1 :] if len(windows) > k else windows[-k:],
+                                      settings, area, gamma_in)
+            if ok:
+                converged = True
+                break
+    if not converged:
+        reason = f"time limit {settings.max_time_s:.3g} s reached: {reason}"
+    return _assemble(
+        windows[-k:], converged, reason, device, point, prop, z, b, nu_anom, area, mass,
+        u_n, gamma_in, settings, t, steps_total, t0,
+    )  # fmt: skip
+
+
+def _window_means(w: dict) -> tuple[float, float, float]:
+    acc, g = w["acc"], w["g"]
+    tw = g[6]
+    current = g[0] / tw
+    u_exit = acc[1, -1] / acc[0, -1]
+    return current, u_exit, tw
+
+
+def _convergence(ws: list[dict], settings: SolverSettings, area: float, gamma_in: float):
+    """Whether the last windows agree; returns (ok, reason)."""
+    stats = [_window_means(w) for w in ws]
+    worst = 0.0
+    what = ""
+    for (c0, u0, _), (c1, u1, _) in itertools.pairwise(stats):
+        for name, a, b in (("discharge current", c0, c1), ("exit ion velocity", u0, u1)):
+            if not (math.isfinite(a) and math.isfinite(b)):
+                return False, f"{name} not finite"
+            rel = abs(b - a) / max(abs(a), abs(b), 1e-30)
+            if rel > worst:
+                worst, what = rel, name
+    last = ws[-settings.n_average_windows :]
+    out = sum(w["g"][2] + w["g"][4] for w in last)
+    inflow = sum(w["g"][5] for w in last)
+    mass_err = out / inflow - 1.0
+    if worst > settings.tolerance:
+        return False, (
+            f"{what} changed by {worst:.2%} between windows (tolerance {settings.tolerance:.2%})"
+        )
+    if abs(mass_err) > settings.mass_tolerance:
+        return False, (
+            f"heavy-particle balance off by {mass_err:.2%} (tolerance "
+            f"{settings.mass_tolerance:.2%})"
+        )
+    return True, (
+        f"windows agree within {worst:.2%} and mass balance closes within {abs(mass_err):.2%}"
+    )
+
+
+def _assemble(ws, converged, reason, device, point, prop, z, b, nu_anom, area, mass, u_n,
+              gamma_in, settings, t_sim, steps, t0) -> SolverResult:  # fmt: skip
+    e = constants.e
+    n = z.size
+    acc = sum(w["acc"] for w in ws)
+    g = sum(w["g"] for w in ws)
+    tw = g[6]
+    samples = np.concatenate([w["samples"] for w in ws])
+    hits = sum(w["hits"] for w in ws)
+    steps_avg = sum(w["steps"] for w in ws)
+    ne = acc[0] / tw
+    ui = acc[1] / acc[0]
+    current = g[0] / tw
+    ion_current = e * area * acc[1] / tw
+    electron_current = -e * area * acc[7] / tw
+    cells = pd.DataFrame(
+        {
+            "z_m": z,
+            "ion_velocity_m_s": ui,
+            "plasma_density_m3": ne,
+            "neutral_density_m3": acc[2] / tw,
+            "electron_temperature_eV": acc[3] / tw,
+            "potential_V": acc[4] / tw,
+            "electric_field_V_m": acc[5] / tw,
+            "anomalous_frequency_per_s": nu_anom,
+            "magnetic_field_T": b,
+            "collision_frequency_per_s": acc[8] / tw,
+            "ion_current_A": ion_current,
+            "electron_current_A": electron_current,
+        }
+    )
+    mdot = point.anode_mass_flow_kg_s
+    v_d = point.discharge_voltage_V
+    ion_out = g[2] / tw
+    mom_out = g[3] / tw
+    neutral_out = g[4] / tw
+    thrust = mass * area * (mom_out + u_n * neutral_out)
+    v_eff = mom_out / ion_out if ion_out > 0.0 else 0.0
+    exit_energy = 0.5 * prop.ion_mass_kg * v_eff**2 / e
+    beam = e * area * ion_out
+    power = v_d * current
+    std, freq = _dominant_frequency(samples, settings.sample_interval_s)
+    mass_err = (g[2] + g[4]) / g[5] - 1.0
+    cur_err = float(np.max(np.abs(ion_current + electron_current - current)) / abs(current))
+    floor_fraction = hits / max(steps_avg * n, 1)
+    glob: dict[str, float | bool | str] = {
+        "discharge_current_A": current,
+        "discharge_power_W": power,
+        "thrust_N": thrust,
+        "specific_impulse_s": thrust / (mdot * constants.g),
+        "anode_efficiency": thrust**2 / (2.0 * mdot * power),
+        "mass_utilization": mass * area * ion_out / mdot,
+        "current_utilization": beam / current,
+        "voltage_utilization": exit_energy / v_d,
+        "exit_ion_energy_eV": exit_energy,
+        "exit_ion_velocity_m_s": float(ui[-1]),
+        "channel_exit_ion_velocity_m_s": float(np.interp(device.channel_length_m, z, ui)),
+        "beam_current_A": beam,
+        "peak_electron_temperature_eV": float(np.max(acc[3] / tw)),
+        "oscillation_amplitude_A": std,
+        "oscillation_relative_amplitude": std / abs(current),
+        "oscillation_frequency_Hz": freq,
+        "mass_balance_error": float(mass_err),
+        "current_balance_error": cur_err,
+        "floor_fraction": float(floor_fraction),
+        "simulated_time_s": float(t_sim),
+        "averaging_time_s": float(tw),
+        "n_steps": int(steps),
+        "n_cells": int(n),
+    }
+    numeric = {k: v for k, v in glob.items() if isinstance(v, float)}
+    bad_glob = [k for k, v in numeric.items() if not math.isfinite(v)]
+    bad_cols = [c for c in cells.columns if not np.all(np.isfinite(cells[c].to_numpy()))]
+    status = "ok" if converged else "not_converged"
+    if bad_glob or bad_cols:
+        return _failed(f"non-finite averages in {bad_glob + bad_cols}", z, t0)
+    if converged and floor_fraction > settings.max_floor_fraction:
+        status = "not_converged"
+        reason = (
+            f"floors/ceilings hit in {floor_fraction:.2%} of cell-steps "
+            f"(limit {settings.max_floor_fraction:.2%}); {reason}"
+        )
+    glob["status"] = status
+    glob["converged"] = status == "ok"
+    glob["reason"] = reason
+    glob["wall_time_s"] = time.perf_counter() - t0
+    t_hist = t_sim - tw + settings.sample_interval_s * np.arange(samples.size)
+    return SolverResult(
+        status, reason, cells, glob, {"time_s": t_hist, "discharge_current_A": samples}
+    )

@@ -1,0 +1,122 @@
+"""Numerical settings of the built-in discharge solver."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass
+
+from ..exceptions import InputDataError
+
+__all__ = ["SolverSettings"]
+
+_INT_RANGES = {"n_cells": (20, 4000), "n_average_windows": (1, 20)}
+_FLOAT_RANGES = {
+    "cfl": (0.05, 0.95),
+    "window_s": (1e-6, 1e-2),
+    "min_time_s": (0.0, 0.1),
+    "max_time_s": (1e-6, 1.0),
+    "tolerance": (1e-5, 0.5),
+    "mass_tolerance": (1e-5, 0.5),
+    "max_time_step_s": (1e-12, 1e-5),
+    "sample_interval_s": (1e-10, 1e-5),
+    "density_floor_m3": (1.0, 1e16),
+    "electron_temperature_floor_eV": (0.01, 5.0),
+    "electron_temperature_ceiling_eV": (10.0, 400.0),
+    "wall_secondary_yield": (0.0, 0.98),
+    "wall_loss_scale": (0.0, 10.0),
+    "max_floor_fraction": (0.0, 1.0),
+}
+
+
+@dataclass(frozen=True)
+class SolverSettings:
+    """Grid, time-march and model options of :func:`profshape.solver.solve`.
+
+    Parameters
+    ----------
+    n_cells : int, default=160
+        Number of uniform axial cells between anode and cathode plane.
+    cfl : float, default=0.8
+        Courant number on the ion fast speed |u_i| + c_s.
+    window_s : float, default=1.0e-4
+        Length of one averaging window [s].
+    min_time_s : float, default=2.0e-4
+        Transient always discarded before windows are compared [s].
+    max_time_s : float, default=1.6e-3
+        Simulated-time limit [s]; reaching it gives status "not_converged".
+    n_average_windows : int, default=2
+        Number of consecutive windows averaged for the result; they must
+        agree to within ``tolerance`` for convergence.
+    tolerance : float, default=0.01
+        Convergence tolerance: relative change of the window-averaged
+        discharge current and exit ion velocity between consecutive windows.
+    mass_tolerance : float, default=0.01
+        Required heavy-particle balance |outlet flow / anode flow - 1| over
+        the averaging window.
+    max_time_step_s : float, default=5e-8
+        Upper bound on the time step [s].
+    sample_interval_s : float, default=1e-7
+        Sampling interval of the discharge-current history [s].
+    density_floor_m3 : float, default=1e13
+        Plasma density floor [m^-3].
+    electron_temperature_floor_eV, electron_temperature_ceiling_eV : float
+        Clip range of T_e [eV] (defaults 0.5 and 250).
+    wall_secondary_yield : float, default=0.5
+        Effective secondary-electron emission yield of the channel walls
+        (sheath energy-loss model), in [0, 0.98].
+    wall_loss_scale : float, default=1.0
+        Multiplier on the electron-wall collision frequency and wall energy
+        loss (0 switches the wall model off).
+    max_floor_fraction : float, default=0.02
+        Largest fraction of cell-steps that may hit a floor or ceiling in the
+        averaging window before the result is marked "not_converged".
+    """
+
+    n_cells: int = 160
+    cfl: float = 0.8
+    window_s: float = 1.0e-4
+    min_time_s: float = 2.0e-4
+    max_time_s: float = 1.6e-3
+    n_average_windows: int = 2
+    tolerance: float = 0.01
+    mass_tolerance: float = 0.01
+    max_time_step_s: float = 5e-8
+    sample_interval_s: float = 1e-7
+    density_floor_m3: float = 1e13
+    electron_temperature_floor_eV: float = 0.5
+    electron_temperature_ceiling_eV: float = 250.0
+    wall_secondary_yield: float = 0.5
+    wall_loss_scale: float = 1.0
+    max_floor_fraction: float = 0.02
+
+    def __post_init__(self) -> None:
+        for key, (lo, hi) in _INT_RANGES.items():
+            value = getattr(self, key)
+            if isinstance(value, bool) or not isinstance(value, int | float) or value != int(value):
+                raise InputDataError(f"solver.{key} must be an integer; got {value!r}.")
+            if not lo <= int(value) <= hi:
+                raise InputDataError(f"solver.{key} must lie in [{lo}, {hi}]; got {value!r}.")
+            object.__setattr__(self, key, int(value))
+        for key, (lo, hi) in _FLOAT_RANGES.items():
+            value = getattr(self, key)
+            try:
+                v = float(value)
+            except (TypeError, ValueError):
+                raise InputDataError(f"solver.{key} must be a number; got {value!r}.") from None
+            if isinstance(value, bool) or not math.isfinite(v) or not lo <= v <= hi:
+                raise InputDataError(f"solver.{key} must lie in [{lo:g}, {hi:g}]; got {value!r}.")
+            object.__setattr__(self, key, v)
+        if self.max_time_s < self.min_time_s + self.n_average_windows * self.window_s:
+            raise InputDataError(
+                f"solver.max_time_s = {self.max_time_s!r} s is shorter than min_time_s + "
+                f"n_average_windows * window_s = "
+                f"{self.min_time_s + self.n_average_windows * self.window_s!r} s; raise it."
+            )
+        if self.electron_temperature_floor_eV >= self.electron_temperature_ceiling_eV:
+            raise InputDataError(
+                "solver.electron_temperature_floor_eV must be below electron_temperature_ceiling_eV."
+            )
+
+    def to_dict(self) -> dict[str, float | int]:
+        """Plain-dict form (same keys as the TOML ``[solver]`` table)."""
+        return asdict(self)
