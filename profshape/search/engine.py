@@ -1,0 +1,398 @@
+"""The stepwise search: propose trials, observe their outcome.
+
+:class:`Search` is the loop without the forward runs: it hands out unit-cube
+points (:meth:`Search.ask`) and learns from their results (:meth:`Search.tell`).
+:func:`~profshape.search.run_search` drives it with a forward model, an
+executor and the trial log.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import torch
+
+from ..exceptions import InputDataError
+from .acquisition import make_acquisition, optimize_acquisition
+from .design import derived_seed, sobol_point, user_points_to_unit
+from .settings import SearchSettings
+from .stopping import StopRules, count_later
+from .surrogate import combined_model, fit_feasibility_model, fit_objective_model
+
+__all__ = ["MIN_OK_FOR_MODEL", "Observation", "Proposal", "Search"]
+
+#: Successful trials needed before the GP proposes; until then, more Sobol points.
+MIN_OK_FOR_MODEL = 2
+
+SOURCES = ("initial", "proposal", "user", "resumed")
+
+
+@dataclass
+class Proposal:
+    """A trial handed out by :meth:`Search.ask`.
+
+    Attributes
+    ----------
+    trial : int
+        Trial index (0-based, unique in a search).
+    batch : int
+        Index of the :meth:`Search.ask` call that made it.
+    source : {"initial", "proposal", "user", "resumed"}
+        Where the point came from.
+    u : ndarray of shape (d,)
+        Unit-cube coordinates.
+    coefficients : dict of str to float
+        Physical coefficients by parameter name.
+    """
+
+    trial: int
+    batch: int
+    source: str
+    u: np.ndarray
+    coefficients: dict[str, float] = field(default_factory=dict)
+
+
+@dataclass
+class Observation:
+    """A finished trial as the search sees it."""
+
+    trial: int
+    batch: int
+    source: str
+    u: np.ndarray
+    value: float
+    ok: bool
+
+
+class Search:
+    """Bayesian-optimisation search over the unit cube of a problem.
+
+    Parameters
+    ----------
+    space : CalibrationProblem or SearchSpace
+        Anything with ``names``, ``dim``, ``to_unit`` and ``from_unit``.
+    settings : SearchSettings
+        Budget, batch size, initial design, seed, optimiser effort.
+
+    Attributes
+    ----------
+    model_ : botorch Model or None
+        Model used for the last proposal: the objective GP, or a ModelListGP
+        (objective, failure indicator) once a run has failed.
+    objective_model_ : SingleTaskGP or None
+        GP of the outcome ``-log(reduced_chi2)`` (or ``-value`` with
+        ``objective_transform="identity"``) on the unit cube.
+    feasibility_model_ : SingleTaskGP or None
+        GP of the failure indicator (1 failed, 0 ok).
+    acquisition_ : AcquisitionFunction or None
+        Acquisition function of the last proposal; call it on tensors of shape
+        ``(b, 1, d)`` to map the acquisition surface.
+
+    Examples
+    --------
+    >>> from profshape.search import Search, SearchSettings, SearchSpace
+    >>> space = SearchSpace(["x"], [[-1.0, 2.0]])
+    >>> s = Search(space, SearchSettings(budget=8, n_initial=3, objective_transform="identity",
+    ...                                  num_restarts=2, raw_samples=16, progress=False))
+    >>> while not s.stop_reason():
+    ...     for p in s.ask():
+    ...         _ = s.tell(p.trial, (p.coefficients["x"] - 0.5) ** 2)
+    >>> abs(s.best_coefficients()["x"] - 0.5) < 0.1
+    True
+    """
+
+    def __init__(self, space: Any, settings: SearchSettings):
+        if not isinstance(settings, SearchSettings):
+            raise InputDataError(
+                f"settings must be a SearchSettings; got {type(settings).__name__}."
+            )
+        self.space = space
+        self.settings = settings
+        self.names = tuple(space.names)
+        self.dim = len(self.names)
+        self.n_initial = settings.resolved_n_initial(self.dim)
+        self._user_u = (
+            user_points_to_unit(settings.initial_points, self.names, space.to_unit)
+            if settings.initial_points
+            else np.zeros((0, self.dim))
+        )
+        self.stop_rules = StopRules(
+            budget=settings.budget,
+            target=settings.target_reduced_chi2,
+            patience=settings.patience,
+        )
+        self._next_trial = 0
+        self._next_batch = 0
+        self._n_sobol = 0
+        self._n_user = 0
+        self._pending: dict[int, Proposal] = {}
+        self._observations: dict[int, Observation] = {}
+        self.model_ = None
+        self.objective_model_ = None
+        self.feasibility_model_ = None
+        self.acquisition_ = None
+
+    # ------------------------------------------------------------------ state
+    @property
+    def n_issued(self) -> int:
+        """Trials proposed so far (finished or running)."""
+        return self._next_trial
+
+    @property
+    def n_finished(self) -> int:
+        """Trials observed."""
+        return len(self._observations)
+
+    @property
+    def n_failed(self) -> int:
+        """Finished trials whose forward run failed."""
+        return sum(1 for o in self._observations.values() if not o.ok)
+
+    @property
+    def pending(self) -> list[Proposal]:
+        """Proposals handed out and not yet observed, by trial index."""
+        return [self._pending[k] for k in sorted(self._pending)]
+
+    @property
+    def observations(self) -> list[Observation]:
+        """Finished trials, by trial index."""
+        return [self._observations[k] for k in sorted(self._observations)]
+
+    def remaining_budget(self) -> int:
+        """Trials that may still be proposed."""
+        return max(self.settings.budget - self._next_trial, 0)
+
+    def best(self) -> Observation | None:
+        """The finished successful trial with the lowest objective (first on ties)."""
+        ok = [o for o in self.observations if o.ok]
+        if not ok:
+            return None
+        return min(ok, key=lambda o: (o.value, o.trial))
+
+    def best_coefficients(self) -> dict[str, float] | None:
+        """Physical coefficients of :meth:`best`."""
+        b = self.best()
+        return None if b is None else self._coefficients(b.u)
+
+    def stop_reason(self) -> str | None:
+        """Why the search should stop now (``"budget"``, ``"target"``, ``"patience"``)."""
+        b = self.best()
+        later = count_later(
+            ((o.trial, o.source) for o in self._observations.values()),
+            None if b is None else b.trial,
+        )
+        return self.stop_rules.reason(
+            self._next_trial, math.inf if b is None else b.value, later
+        )
+
+    def _coefficients(self, u: np.ndarray) -> dict[str, float]:
+        x = np.asarray(self.space.from_unit(np.asarray(u, dtype=float)), dtype=float).reshape(-1)
+        return {n: float(v) for n, v in zip(self.names, x)}
+
+    def _outcome(self, value: float) -> float:
+        if self.settings.objective_transform == "log":
+            return -math.log(max(value, 1e-300))
+        return -value
+
+    # -------------------------------------------------------------- ask/tell
+    def ask(self, n: int = 1, pending: np.ndarray | Sequence[Sequence[float]] | None = None
+            ) -> list[Proposal]:
+        """Propose up to ``n`` new trials (fewer when the budget runs out).
+
+        Parameters
+        ----------
+        n : int, default=1
+            Number of proposals.
+        pending : array_like of shape (m, d), optional
+            Extra unit-cube points being evaluated elsewhere. Proposals already
+            handed out and not yet told are always treated as pending.
+
+        Returns
+        -------
+        list of Proposal
+        """
+        if n < 1:
+            raise InputDataError(f"ask: n must be >= 1; got {n!r}.")
+        n = min(n, self.remaining_budget())
+        if n == 0:
+            return []
+        batch = self._next_batch
+        self._next_batch += 1
+        out: list[Proposal] = []
+        while len(out) < n and self._n_user < len(self._user_u):
+            out.append(self._issue(batch, "user", self._user_u[self._n_user]))
+            self._n_user += 1
+        while len(out) < n and self._n_sobol < self.n_initial:
+            out.append(self._issue(batch, "initial", self._sobol_next()))
+        m = n - len(out)
+        if m:
+            n_ok = sum(1 for o in self._observations.values() if o.ok)
+            if n_ok < MIN_OK_FOR_MODEL:
+                for _ in range(m):
+                    out.append(self._issue(batch, "initial", self._sobol_next()))
+            else:
+                extra = [p.u for p in self.pending] + [p.u for p in out]
+                if pending is not None and len(pending):
+                    extra += list(np.asarray(pending, dtype=float).reshape(-1, self.dim))
+                cand = self._propose(m, np.array(extra).reshape(-1, self.dim))
+                for u in cand:
+                    out.append(self._issue(batch, "proposal", u))
+        return out
+
+    def _sobol_next(self) -> np.ndarray:
+        u = sobol_point(self._n_sobol, self.dim, self.settings.seed)
+        self._n_sobol += 1
+        return u
+
+    def _issue(self, batch: int, source: str, u: np.ndarray) -> Proposal:
+        u = np.clip(np.asarray(u, dtype=float).reshape(self.dim), 0.0, 1.0)
+        p = Proposal(self._next_trial, batch, source, u, self._coefficients(u))
+        self._pending[p.trial] = p
+        self._next_trial += 1
+        return p
+
+    def fit(self) -> None:
+        """Fit the objective (and, after a failure, the feasibility) GP to the data.
+
+        Called by :meth:`ask`; call it yourself to inspect ``model_`` at any time.
+        """
+        obs = self.observations
+        ok = [o for o in obs if o.ok]
+        if len(ok) < 1:
+            raise InputDataError("fit: no successful trial to fit the GP to yet.")
+        u_ok = np.array([o.u for o in ok])
+        y_ok = np.array([self._outcome(o.value) for o in ok])
+        attempts = self.settings.max_fit_attempts
+        with torch.random.fork_rng():
+            torch.manual_seed(derived_seed(self.settings.seed, "fit", self._next_trial) % 2**63)
+            self.objective_model_ = fit_objective_model(u_ok, y_ok, max_attempts=attempts)
+            if len(ok) < len(obs):
+                u_all = np.array([o.u for o in obs])
+                failed = np.array([not o.ok for o in obs])
+                self.feasibility_model_ = fit_feasibility_model(
+                    u_all, failed, max_attempts=attempts
+                )
+            else:
+                self.feasibility_model_ = None
+        self.model_ = combined_model(self.objective_model_, self.feasibility_model_)
+        self._train = (u_ok, y_ok)
+
+    def _propose(self, q: int, pending_u: np.ndarray) -> np.ndarray:
+        self.fit()
+        u_ok, y_ok = self._train
+        seed = derived_seed(self.settings.seed, "proposal", self._next_trial)
+        self.acquisition_ = make_acquisition(
+            self.model_,
+            u_ok,
+            y_ok,
+            q=q,
+            pending_u=pending_u if len(pending_u) else None,
+            has_feasibility=self.feasibility_model_ is not None,
+            mc_samples=self.settings.mc_samples,
+            seed=seed % 2**31,
+        )
+        cand, _ = optimize_acquisition(
+            self.acquisition_,
+            self.dim,
+            q=q,
+            num_restarts=self.settings.num_restarts,
+            raw_samples=self.settings.raw_samples,
+            seed=seed % 2**31,
+        )
+        return cand
+
+    def tell(self, trial: int, value: float | None, ok: bool | None = None) -> Observation:
+        """Record the result of a proposed trial.
+
+        Parameters
+        ----------
+        trial : int
+            Trial index from :meth:`ask`.
+        value : float or None
+            Objective to minimise (reduced chi-square). ``None`` or non-finite
+            marks a failed run; a failed run is never fed to the objective GP.
+        ok : bool, optional
+            Force the status; default: ok when ``value`` is finite (and > 0 with
+            the log transform).
+
+        Returns
+        -------
+        Observation
+        """
+        if trial not in self._pending:
+            raise InputDataError(
+                f"tell: trial {trial!r} is not pending; pending trials are "
+                f"{sorted(self._pending)}."
+            )
+        p = self._pending.pop(trial)
+        v = math.nan if value is None else float(value)
+        good = math.isfinite(v) and (self.settings.objective_transform != "log" or v > 0)
+        if ok is None:
+            ok = good
+        if ok and not good:
+            raise InputDataError(
+                f"tell: trial {trial} marked ok with an unusable value {value!r}; pass a "
+                "finite value (> 0 for the log transform) or ok=False."
+            )
+        obs = Observation(p.trial, p.batch, p.source, p.u, v if ok else math.nan, bool(ok))
+        self._observations[trial] = obs
+        return obs
+
+    # --------------------------------------------------------------- resume
+    def restore(self, finished: Sequence[Observation], in_flight: Sequence[Proposal],
+                state: dict[str, int]) -> None:
+        """Rebuild the search from a log (used by resume).
+
+        Parameters
+        ----------
+        finished : sequence of Observation
+            Completed trials.
+        in_flight : sequence of Proposal
+            Trials handed out but unfinished at the interruption; they become
+            pending again and must be re-run and told.
+        state : dict
+            Counters ``next_trial``, ``next_batch``, ``n_sobol``, ``n_user``.
+        """
+        self._observations = {o.trial: o for o in finished}
+        self._pending = {p.trial: p for p in in_flight}
+        self._next_trial = int(state["next_trial"])
+        self._next_batch = int(state["next_batch"])
+        self._n_sobol = int(state["n_sobol"])
+        self._n_user = int(state["n_user"])
+
+    def state(self) -> dict[str, int]:
+        """Counters needed by :meth:`restore`."""
+        return {
+            "next_trial": self._next_trial,
+            "next_batch": self._next_batch,
+            "n_sobol": self._n_sobol,
+            "n_user": self._n_user,
+        }
+
+    # ------------------------------------------------------------ notebook
+    def predict(self, u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """GP posterior mean and standard deviation of the objective at ``u``.
+
+        Parameters
+        ----------
+        u : array_like of shape (n, d)
+            Unit-cube points.
+
+        Returns
+        -------
+        mean, std : ndarray of shape (n,)
+            In the modelled outcome: ``log(reduced_chi2)`` (log transform) or
+            the value itself (identity), i.e. sign restored for minimisation.
+        """
+        if self.objective_model_ is None:
+            self.fit()
+        x = torch.as_tensor(np.asarray(u, dtype=float).reshape(-1, self.dim), dtype=torch.float64)
+        with torch.no_grad():
+            post = self.objective_model_.posterior(x)
+            mean = -post.mean.reshape(-1).numpy()
+            std = post.variance.clamp_min(0).sqrt().reshape(-1).numpy()
+        return mean, std

@@ -1,0 +1,339 @@
+"""Run a search on a calibration problem: forward runs on an executor, a trial log.
+
+:func:`run_search` proposes trials with :class:`~profshape.search.Search`,
+runs every operating point of every trial as its own task on a
+:class:`concurrent.futures.Executor` (so the points of one trial and the
+trials of one batch run in parallel), judges each finished trial with
+``problem.outcome`` and appends it to the parquet trial log
+(:mod:`profshape.trials`) as soon as it is finished.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import pickle
+import time
+from concurrent.futures import FIRST_COMPLETED, Executor, Future, wait
+from dataclasses import dataclass, field
+from datetime import UTC, datetime
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from .._version import __version__
+from ..exceptions import ConfigError, ForwardModelError
+from ..forward.base import Prediction
+from ..trials import TrialLog, nan_if_inf
+from .engine import Observation, Proposal, Search
+from .progress import SearchProgress
+from .settings import SearchSettings
+
+__all__ = ["SearchResult", "run_search"]
+
+
+@dataclass(frozen=True)
+class SearchResult:
+    """What a search found.
+
+    Attributes
+    ----------
+    trials : pandas.DataFrame
+        The trial log (see :mod:`profshape.trials` for the columns).
+    best_coefficients : dict of str to float or None
+        Coefficients (physical units) of the best successful trial.
+    best_reduced_chi2 : float
+        Its reduced chi-square (``inf`` when no trial succeeded).
+    best_trial : int or None
+        Its trial index.
+    n_trials : int
+        Finished trials.
+    n_failed : int
+        Finished trials whose forward runs failed.
+    stop_reason : str
+        ``"budget"``, ``"target"`` or ``"patience"``.
+    log_path : Path
+        The trial log.
+    """
+
+    trials: pd.DataFrame
+    best_coefficients: dict[str, float] | None
+    best_reduced_chi2: float
+    best_trial: int | None
+    n_trials: int
+    n_failed: int
+    stop_reason: str
+    log_path: Path
+
+
+@dataclass
+class _Running:
+    proposal: Proposal
+    source: str
+    futures: dict[str, Future]
+    started_at: datetime
+    t0: float
+    done: dict[str, Prediction] = field(default_factory=dict)
+
+
+def _now() -> datetime:
+    return datetime.now(UTC)
+
+
+def _is_pickling_error(exc: BaseException) -> bool:
+    if isinstance(exc, pickle.PicklingError):
+        return True
+    text = f"{type(exc).__name__}: {exc}".lower()
+    return "pickl" in text and isinstance(exc, (TypeError, AttributeError, pickle.PicklingError))
+
+
+def _result(future: Future) -> Prediction:
+    try:
+        out = future.result()
+    except Exception as exc:
+        if _is_pickling_error(exc):
+            raise ForwardModelError(
+                f"the forward model or profile could not be sent to the executor ({exc}); "
+                "define functions at module level, or use profshape.executors.InlineExecutor "
+                "or a dask executor (cloudpickle)."
+            ) from exc
+        return Prediction.failure("failed", f"executor: {type(exc).__name__}: {exc}")
+    if not isinstance(out, Prediction):
+        return Prediction.failure("failed", f"executor returned {type(out).__name__}")
+    return out
+
+
+def _row(problem: Any, run: _Running, outcome: Any, finished_at: datetime, seed: int
+         ) -> dict[str, Any]:
+    m = outcome.misfit
+    ok = outcome.ok
+    row: dict[str, Any] = {
+        "trial": run.proposal.trial,
+        "batch": run.proposal.batch,
+        "source": run.source,
+        "status": outcome.status,
+        "reduced_chi2": nan_if_inf(m.reduced_chi2) if ok else math.nan,
+        "chi2": nan_if_inf(m.chi2) if ok else math.nan,
+        "n_data": int(m.n_data),
+        "log_likelihood": nan_if_inf(m.log_likelihood) if ok else math.nan,
+    }
+    for lab in problem.dataset.labels:
+        row[f"misfit__{lab}"] = nan_if_inf(m.per_point.get(lab, math.nan)) if ok else math.nan
+    for key, value in m.per_observable.items():
+        lab, _, obs = key.partition("/")
+        row[f"misfit__{lab}__{obs}"] = nan_if_inf(value) if ok else math.nan
+    for name, value in run.proposal.coefficients.items():
+        row[name] = value
+    for name, value in zip(problem.names, run.proposal.u):
+        row[f"u__{name}"] = float(value)
+    preds = {lab: p.to_json_dict() for lab, p in outcome.predictions.items()}
+    row.update(
+        wall_time_s=time.perf_counter() - run.t0,
+        started_at=run.started_at,
+        finished_at=finished_at,
+        error="" if ok else (outcome.reason or outcome.status),
+        seed=seed,
+        version=__version__,
+        predictions=json.dumps(preds, allow_nan=True),
+    )
+    return row
+
+
+class _Runner:
+    """Submits trials point by point and collects finished trials."""
+
+    def __init__(self, problem: Any, executor: Executor):
+        self.problem = problem
+        self.executor = executor
+        self.points = {p.label: p for p in problem.dataset.operating_points}
+        self.running: dict[int, _Running] = {}
+
+    def submit(self, proposal: Proposal, source: str) -> None:
+        c = np.array([proposal.coefficients[n] for n in self.problem.names])
+        futures = {}
+        for lab in self.problem.dataset.labels:
+            profile = self.problem.profile_for(c, lab)
+            futures[lab] = self.executor.submit(
+                self.problem.forward_model, profile, self.points[lab]
+            )
+        self.running[proposal.trial] = _Running(
+            proposal, source, futures, _now(), time.perf_counter()
+        )
+
+    def wait_finished(self) -> list[tuple[_Running, Any, datetime]]:
+        """Block until at least one trial has all its points done."""
+        while True:
+            finished = []
+            for trial, run in list(self.running.items()):
+                for lab, fut in run.futures.items():
+                    if lab not in run.done and fut.done():
+                        run.done[lab] = _result(fut)
+                if len(run.done) == len(run.futures):
+                    del self.running[trial]
+                    c = np.array([run.proposal.coefficients[n] for n in self.problem.names])
+                    preds = {lab: run.done[lab] for lab in run.futures}
+                    outcome = self.problem.outcome(c, preds, time.perf_counter() - run.t0)
+                    finished.append((run, outcome, _now()))
+            if finished:
+                return sorted(finished, key=lambda f: f[0].proposal.trial)
+            pending = [f for r in self.running.values() for f in r.futures.values()
+                       if not f.done()]
+            if not pending:
+                continue
+            wait(pending, return_when=FIRST_COMPLETED)
+
+
+def _sidecar(search: Search, settings: SearchSettings, problem: Any,
+             stop_reason: str | None) -> dict[str, Any]:
+    return {
+        "names": list(problem.names),
+        "labels": list(problem.dataset.labels),
+        "settings": settings.to_dict(),
+        "state": search.state(),
+        "in_flight": [
+            {"trial": p.trial, "batch": p.batch, "source": p.source, "u": p.u.tolist()}
+            for p in search.pending
+        ],
+        "stop_reason": stop_reason,
+    }
+
+
+def _restore(search: Search, log: TrialLog, settings: SearchSettings, problem: Any) -> None:
+    df = log.load()
+    side = log.read_sidecar()
+    if list(side.get("names", [])) != list(problem.names):
+        raise ConfigError(
+            f"cannot resume {str(log.path)!r}: it searched {side.get('names')}, the problem "
+            f"searches {list(problem.names)}. Use a new log path."
+        )
+    old_seed = side.get("settings", {}).get("seed")
+    if old_seed != settings.seed:
+        raise ConfigError(
+            f"cannot resume {str(log.path)!r}: it ran with seed={old_seed}, the settings give "
+            f"seed={settings.seed}; resume with the same seed."
+        )
+    finished = []
+    done = set()
+    for row in df.to_dict(orient="records"):
+        u = np.array([row[f"u__{n}"] for n in problem.names], dtype=float)
+        ok = row["status"] == "ok"
+        value = float(row["reduced_chi2"]) if ok else math.nan
+        finished.append(Observation(int(row["trial"]), int(row["batch"]), str(row["source"]),
+                                    u, value, ok))
+        done.add(int(row["trial"]))
+    in_flight = []
+    for p in side.get("in_flight", []):
+        if int(p["trial"]) in done:
+            continue
+        u = np.asarray(p["u"], dtype=float)
+        in_flight.append(Proposal(int(p["trial"]), int(p["batch"]), str(p["source"]), u,
+                                  search._coefficients(u)))
+    search.restore(finished, in_flight, side["state"])
+
+
+def run_search(
+    problem: Any,
+    settings: SearchSettings,
+    log_path: str | os.PathLike[str],
+    executor: Executor | None = None,
+    resume: bool = False,
+) -> SearchResult:
+    """Calibrate a problem by Bayesian optimisation.
+
+    Parameters
+    ----------
+    problem : CalibrationProblem
+        Shape family, data, forward model and likelihood.
+    settings : SearchSettings
+        Budget, batch size, stop rules, seed, ...
+    log_path : path-like
+        The parquet trial log to write (its JSON sidecar goes beside it).
+    executor : concurrent.futures.Executor, optional
+        Where the forward runs go; default a local process pool of
+        ``settings.workers`` processes (closed at the end). Use
+        :func:`profshape.executors.dask_executor` for a dask cluster, or
+        :class:`profshape.executors.InlineExecutor` to run in this process.
+    resume : bool, default=False
+        Continue from an existing log: reuse its finished trials, re-run those
+        in flight at the interruption (source ``"resumed"``) and go on with
+        the same seed stream. Without an existing log, start afresh.
+
+    Returns
+    -------
+    SearchResult
+
+    Raises
+    ------
+    ConfigError
+        If the log exists and ``resume`` is False, or the log belongs to a
+        search with other parameters or another seed.
+    ForwardModelError
+        If the forward model cannot be sent to the executor.
+    """
+    if not isinstance(settings, SearchSettings):
+        raise ConfigError(f"settings must be a SearchSettings; got {type(settings).__name__}.")
+    log_path = Path(log_path)
+    search = Search(problem, settings)
+    log = TrialLog(log_path, problem.names, problem.dataset.labels)
+    if log_path.exists():
+        if not resume:
+            raise ConfigError(
+                f"trial log {str(log_path)!r} already exists; pass resume=True to continue it "
+                "or choose another log_path."
+            )
+        _restore(search, log, settings, problem)
+    own = executor is None
+    if own:
+        from ..executors import local_executor
+
+        executor = local_executor(settings.workers)
+    runner = _Runner(problem, executor)
+    progress = SearchProgress(settings.budget, settings.progress, initial=search.n_finished)
+    for p in search.pending:  # in flight at the interruption
+        runner.submit(p, "resumed")
+    stop_reason: str | None = None
+    try:
+        log.write_sidecar(_sidecar(search, settings, problem, None))
+        while True:
+            stop_reason = search.stop_reason()
+            if stop_reason is None:
+                room = settings.workers - len(runner.running)
+                if settings.asynchronous and room > 0:
+                    proposals = search.ask(room)
+                elif not runner.running:
+                    proposals = search.ask(settings.batch_size)
+                else:
+                    proposals = []
+                if proposals:
+                    log.write_sidecar(_sidecar(search, settings, problem, None))
+                    for p in proposals:
+                        runner.submit(p, p.source)
+            if not runner.running:
+                break
+            for run, outcome, finished_at in runner.wait_finished():
+                row = _row(problem, run, outcome, finished_at, settings.seed)
+                value = row["reduced_chi2"]
+                search.tell(run.proposal.trial, value if outcome.ok else None, ok=outcome.ok)
+                log.append(row)
+                progress.update(outcome.ok, value, run.source)
+            log.write_sidecar(_sidecar(search, settings, problem, None))
+        stop_reason = search.stop_reason() or "budget"
+        log.write_sidecar(_sidecar(search, settings, problem, stop_reason))
+    finally:
+        progress.close()
+        if own:
+            executor.shutdown(wait=True, cancel_futures=True)
+    best = search.best()
+    return SearchResult(
+        trials=log.frame(),
+        best_coefficients=search.best_coefficients(),
+        best_reduced_chi2=math.inf if best is None else best.value,
+        best_trial=None if best is None else best.trial,
+        n_trials=search.n_finished,
+        n_failed=search.n_failed,
+        stop_reason=stop_reason,
+        log_path=log_path,
+    )

@@ -1,0 +1,167 @@
+"""Settings of a search, validated where they enter."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass
+from typing import Any, Literal
+
+import numpy as np
+
+from ..exceptions import ConfigError
+
+__all__ = ["SearchSettings"]
+
+ObjectiveTransform = Literal["log", "identity"]
+
+
+def _int_field(name: str, value: Any, minimum: int, *, allow_none: bool = False) -> None:
+    if value is None and allow_none:
+        return
+    if isinstance(value, bool) or not isinstance(value, (int, np.integer)):
+        raise ConfigError(
+            f"SearchSettings.{name} must be an integer >= {minimum}"
+            f"{' or None' if allow_none else ''}; got {value!r}."
+        )
+    if value < minimum:
+        raise ConfigError(
+            f"SearchSettings.{name} must be >= {minimum}; got {value!r}. "
+            f"Give {name}={minimum} or more."
+        )
+
+
+@dataclass(frozen=True)
+class SearchSettings:
+    """How a search runs and when it stops.
+
+    Parameters
+    ----------
+    budget : int
+        Maximum number of forward-model trials (each trial runs every operating
+        point once), failures and user points included.
+    batch_size : int, default=1
+        Number of proposals ``q`` made together. ``q = 1`` uses analytic log
+        expected improvement; ``q > 1`` (or pending points) uses batch log noisy
+        expected improvement.
+    n_initial : int or None, default=None
+        Number of scrambled Sobol points of the initial design; ``None`` means
+        ``2 d + 1`` (common practice, no source).
+    initial_points : list of dict or array_like, optional
+        User starting shapes (coefficient dicts keyed by parameter name, or
+        arrays in parameter order, physical units). Run first, logged with
+        source ``"user"``; they come in addition to the Sobol points.
+    target_reduced_chi2 : float or None, default=None
+        Stop as soon as the best reduced chi-square is at or below this value
+        (the noise floor of a correct model is 1).
+    patience : int or None, default=None
+        Stop after this many completed proposal trials without improving the best
+        objective.
+    seed : int, default=0
+        Seed of the Sobol design and of all proposal randomness. Proposal
+        ``i`` draws from a stream that depends on ``(seed, i)`` only.
+    progress : bool, default=True
+        Show a tqdm progress bar.
+    num_restarts : int, default=8
+        Restarts of the acquisition optimiser (``botorch.optim.optimize_acqf``).
+    raw_samples : int, default=256
+        Random raw samples used to pick the restart points.
+    mc_samples : int, default=128
+        Quasi-Monte-Carlo samples of the batch acquisition function.
+    n_workers : int or None, default=None
+        Number of trials kept in flight at once; ``None`` means ``batch_size``.
+        Also the size of the default local process pool.
+    asynchronous : bool, default=False
+        ``False``: synchronous batches (propose ``q``, wait for all, repeat);
+        deterministic given the seed. ``True``: a free worker gets a new
+        proposal at once, the other running trials entering as pending points;
+        faster when run times vary, but the order of completion (hence the
+        trials) depends on timing.
+    objective_transform : {"log", "identity"}, default="log"
+        Outcome fed to the GP: ``"log"`` models ``log(reduced_chi2)``;
+        ``"identity"`` models the value itself (for objectives that may be
+        negative, such as test functions).
+    max_fit_attempts : int, default=3
+        Attempts of the hyperparameter fit (``botorch.fit.fit_gpytorch_mll``).
+    """
+
+    budget: int
+    batch_size: int = 1
+    n_initial: int | None = None
+    initial_points: tuple[Any, ...] | list[Any] | None = None
+    target_reduced_chi2: float | None = None
+    patience: int | None = None
+    seed: int = 0
+    progress: bool = True
+    num_restarts: int = 8
+    raw_samples: int = 256
+    mc_samples: int = 128
+    n_workers: int | None = None
+    asynchronous: bool = False
+    objective_transform: ObjectiveTransform = "log"
+    max_fit_attempts: int = 3
+
+    def __post_init__(self) -> None:
+        _int_field("budget", self.budget, 1)
+        _int_field("batch_size", self.batch_size, 1)
+        _int_field("n_initial", self.n_initial, 1, allow_none=True)
+        _int_field("patience", self.patience, 1, allow_none=True)
+        _int_field("seed", self.seed, 0)
+        _int_field("num_restarts", self.num_restarts, 1)
+        _int_field("raw_samples", self.raw_samples, 1)
+        _int_field("mc_samples", self.mc_samples, 1)
+        _int_field("n_workers", self.n_workers, 1, allow_none=True)
+        _int_field("max_fit_attempts", self.max_fit_attempts, 1)
+        if self.raw_samples < self.num_restarts:
+            raise ConfigError(
+                f"SearchSettings.raw_samples ({self.raw_samples}) must be >= num_restarts "
+                f"({self.num_restarts}); raise raw_samples or lower num_restarts."
+            )
+        if self.target_reduced_chi2 is not None:
+            t = self.target_reduced_chi2
+            if isinstance(t, bool) or not isinstance(t, (int, float, np.floating)):
+                raise ConfigError(
+                    f"SearchSettings.target_reduced_chi2 must be a number > 0 or None; got {t!r}."
+                )
+            if not math.isfinite(float(t)) or float(t) <= 0.0:
+                raise ConfigError(
+                    f"SearchSettings.target_reduced_chi2 must be finite and > 0; got {t!r} "
+                    "(the noise floor is 1)."
+                )
+        if self.objective_transform not in ("log", "identity"):
+            raise ConfigError(
+                "SearchSettings.objective_transform must be 'log' or 'identity'; "
+                f"got {self.objective_transform!r}."
+            )
+        for name in ("progress", "asynchronous"):
+            if not isinstance(getattr(self, name), bool):
+                raise ConfigError(
+                    f"SearchSettings.{name} must be True or False; got {getattr(self, name)!r}."
+                )
+        if self.initial_points is not None:
+            if isinstance(self.initial_points, (str, bytes, dict)) or not hasattr(
+                self.initial_points, "__len__"
+            ):
+                raise ConfigError(
+                    "SearchSettings.initial_points must be a list of coefficient dicts or "
+                    f"arrays; got {type(self.initial_points).__name__}."
+                )
+            object.__setattr__(self, "initial_points", tuple(self.initial_points))
+
+    @property
+    def workers(self) -> int:
+        """Number of trials in flight (``n_workers`` or ``batch_size``)."""
+        return self.n_workers if self.n_workers is not None else self.batch_size
+
+    def resolved_n_initial(self, dim: int) -> int:
+        """Size of the Sobol initial design for a ``dim``-dimensional space."""
+        return self.n_initial if self.n_initial is not None else 2 * dim + 1
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready form (initial points as lists)."""
+        out = asdict(self)
+        if self.initial_points is not None:
+            out["initial_points"] = [
+                dict(p) if isinstance(p, dict) else np.asarray(p, dtype=float).tolist()
+                for p in self.initial_points
+            ]
+        return out

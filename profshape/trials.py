@@ -1,0 +1,275 @@
+"""The trial log: one parquet table per search, one row per finished trial.
+
+The table is rewritten after every finished trial through a temporary file in
+the same folder, ``fsync`` and :func:`os.replace`, so an interrupted write
+never damages what was there and :func:`pandas.read_parquet` can read it at
+any moment. A JSON sidecar (``<log name>.json``) beside it holds the search
+settings, the search counters and the trials in flight, written the same way;
+:func:`~profshape.search.run_search` uses it to resume.
+
+Columns
+-------
+trial : int
+    Trial index, 0-based, in proposal order.
+batch : int
+    Index of the proposal round that made the trial.
+source : str
+    ``"initial"`` (Sobol design), ``"proposal"`` (expected improvement),
+    ``"user"`` (a user starting shape) or ``"resumed"`` (re-run after an
+    interruption).
+status : str
+    ``"ok"``, ``"failed"``, ``"timeout"`` or ``"not_converged"``.
+reduced_chi2, chi2, log_likelihood : float
+    Misfit of the trial; NaN when it failed.
+n_data : int
+    Number of measured values compared.
+misfit__<label> : float
+    Chi-square of operating point ``label``; NaN when failed.
+misfit__<label>__<observable> : float
+    Chi-square of one observable at one point.
+<parameter name> : float
+    One column per searched parameter, named as ``problem.names``, in
+    physical units.
+u__<parameter name> : float
+    The same point in the unit cube of the search.
+wall_time_s : float
+    Wall time of the trial [s] (all its operating points).
+started_at, finished_at : datetime64 (UTC)
+    When the trial was submitted and when its last point finished.
+error : str
+    Why the trial failed (empty when ok).
+seed : int
+    Seed of the search.
+version : str
+    ``profshape.__version__`` that ran the trial.
+predictions : str
+    JSON ``{label: {"status", "z_m": [...], "ion_velocity_m_s": [...],
+    "scalars": {...}, "reason"}}`` so a fit can be re-plotted without
+    re-running.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import json
+import math
+import os
+import tempfile
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from ._version import __version__
+from .exceptions import InputDataError
+
+__all__ = [
+    "BASE_COLUMNS",
+    "TrialLog",
+    "atomic_write_bytes",
+    "read_predictions",
+    "read_trials",
+    "sidecar_path",
+]
+
+BASE_COLUMNS = (
+    "trial", "batch", "source", "status", "reduced_chi2", "chi2", "n_data", "log_likelihood",
+)
+TAIL_COLUMNS = (
+    "wall_time_s", "started_at", "finished_at", "error", "seed", "version", "predictions",
+)
+
+
+def sidecar_path(log_path: str | os.PathLike[str]) -> Path:
+    """Path of the JSON sidecar of a trial log (``<log name>.json``)."""
+    p = Path(log_path)
+    return p.with_name(p.name + ".json")
+
+
+def _fsync_dir(folder: Path) -> None:
+    with contextlib.suppress(OSError):  # not every platform can open a folder
+        fd = os.open(folder, os.O_RDONLY)
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+
+
+def atomic_write_bytes(path: str | os.PathLike[str], writer: Any) -> None:
+    """Write a file atomically: temp file in the same folder, fsync, os.replace.
+
+    Parameters
+    ----------
+    path : path-like
+        Destination.
+    writer : callable
+        ``writer(tmp_path)`` writes the full content to ``tmp_path``.
+    """
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    os.close(fd)
+    try:
+        writer(tmp)
+        with open(tmp, "rb+") as fh:
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        raise
+    _fsync_dir(path.parent)
+
+
+def _json_default(obj: Any) -> Any:
+    if isinstance(obj, np.ndarray):
+        return obj.tolist()
+    if isinstance(obj, np.generic):
+        return obj.item()
+    raise TypeError(f"not JSON serialisable: {type(obj).__name__}")
+
+
+def _write_json(path: Path, data: Mapping[str, Any]) -> None:
+    text = json.dumps(data, indent=1, default=_json_default, allow_nan=True)
+
+    def writer(tmp: str) -> None:
+        Path(tmp).write_text(text, encoding="utf-8")
+
+    atomic_write_bytes(path, writer)
+
+
+def read_trials(path: str | os.PathLike[str]) -> pd.DataFrame:
+    """Read a trial log, sorted by trial index.
+
+    Raises
+    ------
+    InputDataError
+        If the file is missing or is not a trial log.
+    """
+    p = Path(path)
+    if not p.is_file():
+        raise InputDataError(f"trial log {str(p)!r} does not exist; check the path.")
+    df = pd.read_parquet(p)
+    missing = [c for c in BASE_COLUMNS if c not in df.columns]
+    if missing:
+        raise InputDataError(
+            f"{str(p)!r} is not a profshape trial log: columns {missing} are missing."
+        )
+    return df.sort_values("trial", kind="stable").reset_index(drop=True)
+
+
+def read_predictions(row: Mapping[str, Any] | pd.Series) -> dict[str, dict[str, Any]]:
+    """Decode the ``predictions`` JSON of one log row into arrays.
+
+    Returns
+    -------
+    dict of label to dict
+        ``{"z_m": ndarray, "ion_velocity_m_s": ndarray, "scalars": dict, ...}``;
+        arrays are ``None`` for failed points.
+    """
+    raw = json.loads(row["predictions"] or "{}")
+    out = {}
+    for label, p in raw.items():
+        p = dict(p)
+        for key in ("z_m", "ion_velocity_m_s"):
+            if p.get(key) is not None:
+                p[key] = np.asarray(p[key], dtype=float)
+        out[label] = p
+    return out
+
+
+class TrialLog:
+    """Append-only parquet trial log with an atomic JSON sidecar.
+
+    Parameters
+    ----------
+    path : path-like
+        The ``.parquet`` file.
+    parameter_names : sequence of str
+        Searched parameter names (column order).
+    labels : sequence of str, optional
+        Operating-point labels, so every ``misfit__<label>`` column exists
+        from the first row on.
+    """
+
+    def __init__(
+        self,
+        path: str | os.PathLike[str],
+        parameter_names: Sequence[str],
+        labels: Sequence[str] = (),
+    ) -> None:
+        self.path = Path(path)
+        self.sidecar = sidecar_path(self.path)
+        self.parameter_names = tuple(parameter_names)
+        self.labels = tuple(labels)
+        self._rows: list[dict[str, Any]] = []
+
+    # ---------------------------------------------------------------- rows
+    @property
+    def rows(self) -> list[dict[str, Any]]:
+        """Rows written so far (copies are not made; do not modify)."""
+        return self._rows
+
+    def load(self) -> pd.DataFrame:
+        """Read the existing log into memory (for resume) and return it."""
+        df = read_trials(self.path)
+        absent = [n for n in self.parameter_names if n not in df.columns]
+        if absent:
+            raise InputDataError(
+                f"trial log {str(self.path)!r} has no columns for parameters {absent}; it was "
+                "written by a search over other parameters. Use a new log path."
+            )
+        self._rows = df.to_dict(orient="records")
+        return df
+
+    def append(self, row: Mapping[str, Any]) -> None:
+        """Add one finished trial and rewrite the table atomically."""
+        self._rows.append(dict(row))
+        self._write()
+
+    def frame(self) -> pd.DataFrame:
+        """The rows as a DataFrame with the documented column order, by trial."""
+        if not self._rows:
+            return pd.DataFrame(columns=self._columns(set()))
+        df = pd.DataFrame.from_records(self._rows)
+        df = df.reindex(columns=self._columns(set(df.columns)))
+        return df.sort_values("trial", kind="stable").reset_index(drop=True)
+
+    def _columns(self, present: set[str]) -> list[str]:
+        misfit = [f"misfit__{lab}" for lab in self.labels]
+        extra = sorted(c for c in present if c.startswith("misfit__") and c not in misfit)
+        cols = [*BASE_COLUMNS, *misfit, *extra, *self.parameter_names,
+                *(f"u__{n}" for n in self.parameter_names), *TAIL_COLUMNS]
+        others = sorted(present - set(cols))
+        return cols + others
+
+    def _write(self) -> None:
+        df = self.frame()
+        for col in ("trial", "batch", "n_data", "seed"):
+            df[col] = df[col].astype("int64")
+        for col in ("started_at", "finished_at"):
+            df[col] = pd.to_datetime(df[col], utc=True)
+        for col in ("source", "status", "error", "version", "predictions"):
+            df[col] = df[col].fillna("").astype(str)
+        atomic_write_bytes(self.path, lambda tmp: df.to_parquet(tmp, index=False))
+
+    # ------------------------------------------------------------- sidecar
+    def write_sidecar(self, data: Mapping[str, Any]) -> None:
+        """Write the JSON sidecar atomically."""
+        _write_json(self.sidecar, {"version": __version__, **data})
+
+    def read_sidecar(self) -> dict[str, Any]:
+        """Read the JSON sidecar."""
+        if not self.sidecar.is_file():
+            raise InputDataError(
+                f"cannot resume: the sidecar {str(self.sidecar)!r} of the trial log is missing."
+            )
+        return json.loads(self.sidecar.read_text(encoding="utf-8"))
+
+
+def nan_if_inf(x: float) -> float:
+    """NaN for a non-finite misfit value (the log records failures as NaN)."""
+    x = float(x)
+    return x if math.isfinite(x) else math.nan
