@@ -257,26 +257,29 @@ def _solve(device, point, profile, settings, prop, z, b, t0) -> SolverResult:
     dz = device.domain_length_m / n
 
     nn, ni, gi, te = _initial_state(z, device, gamma_in, u_n, v_max)
-    n_samples = int(settings.window_s / settings.sample_interval_s) + 4
-    windows: list[dict] = []
+    plan = _Plan(settings)
+    acc = np.zeros((plan.n_chunks, 10, n))
+    acc_g = np.zeros((plan.n_chunks, 8))
+    samples = np.zeros(plan.n_samples)
     t = 0.0
+    c0 = 0
     steps_total = 0
     converged = False
-    reason = ""
-    k = settings.n_average_windows
-    while t < settings.max_time_s * (1.0 - 1e-12):
-        t_end = min(t + settings.window_s, settings.max_time_s)
-        acc = np.zeros((10, n))
-        acc_g = np.zeros(8)
-        samples = np.zeros(n_samples)
-        status, steps, t_new, hits, n_samp, bad = _kernels.march(
+    reason = "no averaging window completed"
+    span = None
+    while c0 < plan.n_chunks_run:
+        c1 = min(c0 + plan.chunks_per_call, plan.n_chunks_run)
+        t_end = c1 * plan.chunk_dt
+        s0 = round(t / settings.sample_interval_s)
+        status, steps, t_new, hits, _n_samp, bad = _kernels.march(
             nn, ni, gi, te, dz, area, mass, u_n, gamma_in, v_d,
             device.cathode_electron_temperature_eV, omega_ce, nu_anom, wall_mask,
             wall_nu_factor, wall_loss_per_te, rates.t0_eV, 1.0 / rates.dt_eV,
             rates.ionization_m3_s, rates.energy_loss_eV_m3_s, rates.momentum_m3_s,
             settings.density_floor_m3, settings.electron_temperature_floor_eV,
             settings.electron_temperature_ceiling_eV, settings.cfl, settings.max_time_step_s,
-            t, t_end, settings.sample_interval_s, acc, acc_g, samples,
+            t, t_end, settings.sample_interval_s, plan.chunk_dt,
+            acc[c0:c1], acc_g[c0:c1], samples[s0:],
         )  # fmt: skip
         steps_total += steps
         if status != _kernels.OK:
@@ -288,72 +291,142 @@ def _solve(device, point, profile, settings, prop, z, b, t0) -> SolverResult:
                 t0,
                 {"simulated_time_s": t_new, "n_steps": steps_total},
             )
-        windows.append(
-            {"acc": acc, "g": acc_g, "samples": samples[:n_samp], "hits": hits, "steps": steps}
-        )
-        t = t_new
-        if t >= settings.min_time_s + k * settings.window_s * (1.0 - 1e-9):
-            ok, reason = _convergence(windows[-k - 1 :] if len(windows) > k else windows[-k:],
-                                      settings, area, gamma_in)
+        plan.hits[c0:c1] = hits / (c1 - c0)  # spread evenly over the call's chunks
+        plan.steps[c0:c1] = steps / (c1 - c0)
+        t = t_end
+        c0 = c1
+        found, ok, reason = _convergence(acc, acc_g, c1, plan, settings)
+        if found is not None:
+            span = found
             if ok:
                 converged = True
                 break
     if not converged:
         reason = f"time limit {settings.max_time_s:.3g} s reached: {reason}"
+    if span is None:
+        span = (max(c0 - settings.n_average_windows * plan.chunks_per_window, 0), c0, 0)
     return _assemble(
-        windows[-k:], converged, reason, device, point, prop, z, b, nu_anom, area, mass,
-        u_n, gamma_in, settings, t, steps_total, t0,
+        acc, acc_g, samples, span, plan, converged, reason, device, point, prop, z, b,
+        nu_anom, area, mass, u_n, settings, t, steps_total, t0,
     )  # fmt: skip
 
 
-def _window_means(w: dict) -> tuple[float, float, float]:
-    acc, g = w["acc"], w["g"]
-    tw = g[6]
-    current = g[0] / tw
-    u_exit = acc[1, -1] / acc[0, -1]
-    return current, u_exit, tw
+class _Plan:
+    """Chunking of the simulated time for averaging and convergence checks."""
+
+    def __init__(self, settings: SolverSettings) -> None:
+        self.chunks_per_window = max(8, round(settings.window_s / 1e-6))
+        self.chunk_dt = settings.window_s / self.chunks_per_window
+        self.chunks_per_call = max(1, self.chunks_per_window // 4)
+        self.n_chunks_run = math.ceil(settings.max_time_s / self.chunk_dt - 1e-9)
+        self.n_chunks = self.n_chunks_run + 1
+        self.min_chunk = round(settings.min_time_s / self.chunk_dt)
+        self.n_samples = int(settings.max_time_s / settings.sample_interval_s) + 8
+        self.hits = np.zeros(self.n_chunks)
+        self.steps = np.zeros(self.n_chunks)
 
 
-def _convergence(ws: list[dict], settings: SolverSettings, area: float, gamma_in: float):
-    """Whether the last windows agree; returns (ok, reason)."""
-    stats = [_window_means(w) for w in ws]
+#: Relative standard deviation of the chunk-mean current above which the
+#: discharge counts as oscillating and averages are taken over whole cycles.
+_OSCILLATION_THRESHOLD = 0.01
+
+
+def _upward_crossings(x: np.ndarray, band: float) -> np.ndarray:
+    """Indices where x rises through +band after having been below -band."""
+    out = []
+    armed = False
+    for i, v in enumerate(x):
+        if v < -band:
+            armed = True
+        elif v > band and armed:
+            out.append(i)
+            armed = False
+    return np.asarray(out, dtype=int)
+
+
+def _spans(acc_g: np.ndarray, c_end: int, plan: _Plan, settings: SolverSettings):
+    """The last n_average_windows + 1 spans ending at c_end, as chunk boundaries.
+
+    Returns (bounds, n_cycles_per_span, message); bounds is None if there is
+    not enough data yet. Bounds are increasing chunk indices b_0 < ... < b_K.
+    """
+    k = settings.n_average_windows
+    npw = plan.chunks_per_window
+    lo = plan.min_chunk
+    cur = acc_g[lo:c_end, 0] / np.maximum(acc_g[lo:c_end, 6], 1e-300)
+    recent = cur[-2 * npw :]
+    mean = float(np.mean(recent)) if recent.size else 0.0
+    rel = float(np.std(recent)) / max(abs(mean), 1e-30) if recent.size else 0.0
+    if rel <= _OSCILLATION_THRESHOLD:
+        if c_end - (k + 1) * npw < lo:
+            return None, 0, "transient not yet over"
+        return [c_end - j * npw for j in range(k + 1, -1, -1)], 0, ""
+    crossings = _upward_crossings(cur - mean, 0.25 * rel * abs(mean)) + lo
+    if crossings.size < 3:
+        return None, 0, f"oscillating ({rel:.1%} rms), too few cycles yet"
+    period = float(np.median(np.diff(crossings[-6:])))
+    m = max(1, round(npw / period))
+    need = (k + 1) * m + 1
+    if crossings.size < need:
+        return None, m, f"oscillating ({rel:.1%} rms), {crossings.size} of {need} cycles"
+    sel = crossings[-need:][::m]
+    return [int(x) for x in sel], m, ""
+
+
+def _convergence(acc, acc_g, c_end: int, plan: _Plan, settings: SolverSettings):
+    """Convergence test at chunk c_end; returns (span or None, ok, reason).
+
+    span = (first chunk, end chunk, cycles) of the averaging range.
+    """
+    bounds, m, msg = _spans(acc_g, c_end, plan, settings)
+    if bounds is None:
+        return None, False, msg
+    k = settings.n_average_windows
+    stats = []
+    for a, b in itertools.pairwise(bounds):
+        g = acc_g[a:b].sum(axis=0)
+        u_exit = acc[a:b, 1, -1].sum() / max(acc[a:b, 0, -1].sum(), 1e-300)
+        stats.append((g[0] / g[6], u_exit))
     worst = 0.0
     what = ""
-    for (c0, u0, _), (c1, u1, _) in itertools.pairwise(stats):
-        for name, a, b in (("discharge current", c0, c1), ("exit ion velocity", u0, u1)):
-            if not (math.isfinite(a) and math.isfinite(b)):
-                return False, f"{name} not finite"
-            rel = abs(b - a) / max(abs(a), abs(b), 1e-30)
+    for (c0, u0), (c1, u1) in itertools.pairwise(stats):
+        for name, x, y in (("discharge current", c0, c1), ("exit ion velocity", u0, u1)):
+            if not (math.isfinite(x) and math.isfinite(y)):
+                return None, False, f"{name} not finite"
+            rel = abs(y - x) / max(abs(x), abs(y), 1e-30)
             if rel > worst:
                 worst, what = rel, name
-    last = ws[-settings.n_average_windows :]
-    out = sum(w["g"][2] + w["g"][4] for w in last)
-    inflow = sum(w["g"][5] for w in last)
-    mass_err = out / inflow - 1.0
+    g = acc_g[bounds[1] : bounds[-1]].sum(axis=0)
+    mass_err = (g[2] + g[4]) / g[5] - 1.0
+    span = (bounds[1], bounds[-1], m * k)
+    unit = f"spans of {m} oscillation cycles" if m else "windows"
     if worst > settings.tolerance:
-        return False, (
-            f"{what} changed by {worst:.2%} between windows (tolerance {settings.tolerance:.2%})"
+        return span, False, (
+            f"{what} changed by {worst:.2%} between {unit} (tolerance {settings.tolerance:.2%})"
         )
     if abs(mass_err) > settings.mass_tolerance:
-        return False, (
+        return span, False, (
             f"heavy-particle balance off by {mass_err:.2%} (tolerance "
             f"{settings.mass_tolerance:.2%})"
         )
-    return True, (
-        f"windows agree within {worst:.2%} and mass balance closes within {abs(mass_err):.2%}"
+    return span, True, (
+        f"{unit} agree within {worst:.2%}; mass balance closes within {abs(mass_err):.2%}"
     )
 
 
-def _assemble(ws, converged, reason, device, point, prop, z, b, nu_anom, area, mass, u_n,
-              gamma_in, settings, t_sim, steps, t0) -> SolverResult:  # fmt: skip
+def _assemble(acc_all, g_all, samples_all, span, plan, converged, reason, device, point, prop,
+              z, b, nu_anom, area, mass, u_n, settings, t_sim, steps, t0) -> SolverResult:  # fmt: skip
     e = constants.e
     n = z.size
-    acc = sum(w["acc"] for w in ws)
-    g = sum(w["g"] for w in ws)
+    a, bnd, n_cycles = span
+    acc = acc_all[a:bnd].sum(axis=0)
+    g = g_all[a:bnd].sum(axis=0)
     tw = g[6]
-    samples = np.concatenate([w["samples"] for w in ws])
-    hits = sum(w["hits"] for w in ws)
-    steps_avg = sum(w["steps"] for w in ws)
+    t_a, t_b = a * plan.chunk_dt, bnd * plan.chunk_dt
+    dts = settings.sample_interval_s
+    samples = samples_all[math.ceil(t_a / dts - 1e-9) : int(t_b / dts)]
+    hits = float(plan.hits[a:bnd].sum())
+    steps_avg = float(plan.steps[a:bnd].sum())
     ne = acc[0] / tw
     ui = acc[1] / acc[0]
     current = g[0] / tw
@@ -385,7 +458,9 @@ def _assemble(ws, converged, reason, device, point, prop, z, b, nu_anom, area, m
     exit_energy = 0.5 * prop.ion_mass_kg * v_eff**2 / e
     beam = e * area * ion_out
     power = v_d * current
-    std, freq = _dominant_frequency(samples, settings.sample_interval_s)
+    std, freq = _dominant_frequency(samples, dts)
+    if n_cycles:
+        freq = n_cycles / (t_b - t_a)
     mass_err = (g[2] + g[4]) / g[5] - 1.0
     cur_err = float(np.max(np.abs(ion_current + electron_current - current)) / abs(current))
     floor_fraction = hits / max(steps_avg * n, 1)
@@ -411,6 +486,7 @@ def _assemble(ws, converged, reason, device, point, prop, z, b, nu_anom, area, m
         "floor_fraction": float(floor_fraction),
         "simulated_time_s": float(t_sim),
         "averaging_time_s": float(tw),
+        "averaging_start_s": float(t_a),
         "n_steps": int(steps),
         "n_cells": int(n),
     }
@@ -430,7 +506,7 @@ def _assemble(ws, converged, reason, device, point, prop, z, b, nu_anom, area, m
     glob["converged"] = status == "ok"
     glob["reason"] = reason
     glob["wall_time_s"] = time.perf_counter() - t0
-    t_hist = t_sim - tw + settings.sample_interval_s * np.arange(samples.size)
+    t_hist = dts * (math.ceil(t_a / dts - 1e-9) + np.arange(samples.size))
     return SolverResult(
         status, reason, cells, glob, {"time_s": t_hist, "discharge_current_A": samples}
     )
