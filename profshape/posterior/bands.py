@@ -1,0 +1,334 @@
+"""Credible bands from posterior draws: profile, ion velocity and scalar outputs.
+
+Bands are pointwise central intervals: at each position the ``(1 - level) / 2``
+and ``(1 + level) / 2`` quantiles of the draws. Ion-velocity and scalar bands
+come from forward runs of posterior draws; draws whose run failed are counted
+and listed in :attr:`PosteriorBands.draws`, never averaged in.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from ..exceptions import InputDataError
+from ._evaluate import DrawRun, evaluate_many
+from .result import PosteriorResult
+from .settings import check_levels
+
+__all__ = ["PosteriorBands", "band_columns", "posterior_bands", "profile_band", "quantile_band"]
+
+
+def band_columns(levels: Sequence[float]) -> list[str]:
+    """Column names ``lower_<level>`` / ``upper_<level>`` of the given levels."""
+    out = []
+    for lev in levels:
+        out += [f"lower_{lev:g}", f"upper_{lev:g}"]
+    return out
+
+
+def quantile_band(values: np.ndarray, levels: Sequence[float]) -> dict[str, np.ndarray]:
+    """Median and central intervals over axis 0 of ``values`` (n_draws, n), ignoring NaN."""
+    v = np.asarray(values, dtype=float)
+    out = {"median": np.nanmedian(v, axis=0)}
+    for lev in levels:
+        lo, hi = np.nanquantile(v, [(1 - lev) / 2, (1 + lev) / 2], axis=0)
+        out[f"lower_{lev:g}"] = lo
+        out[f"upper_{lev:g}"] = hi
+    return out
+
+
+def profile_band(
+    profile_values: Callable[[np.ndarray], np.ndarray] | np.ndarray,
+    z_m: np.ndarray,
+    levels: Sequence[float] = (0.68, 0.95),
+    best: np.ndarray | None = None,
+) -> pd.DataFrame:
+    """Pointwise credible band of a profile along z.
+
+    Parameters
+    ----------
+    profile_values : ndarray of shape (n_draws, n_z)
+        Profile values of each posterior draw at ``z_m``.
+    z_m : ndarray of shape (n_z,)
+        Axial positions [m].
+    levels : sequence of float
+    best : ndarray of shape (n_z,), optional
+        The best-fit (MAP) profile, added as column ``map``.
+
+    Returns
+    -------
+    DataFrame
+        Columns ``z_m``, ``median``, ``lower_<level>``, ``upper_<level>`` (and ``map``).
+    """
+    levels = check_levels(levels, "levels")
+    values = np.atleast_2d(np.asarray(profile_values, dtype=float))
+    z = np.asarray(z_m, dtype=float)
+    if values.shape[1] != z.shape[0]:
+        raise InputDataError(
+            f"profile_band: values have {values.shape[1]} columns but z_m has {z.shape[0]} points."
+        )
+    frame = pd.DataFrame({"z_m": z, **quantile_band(values, levels)})
+    if best is not None:
+        frame["map"] = np.asarray(best, dtype=float)
+    return frame
+
+
+@dataclass
+class PosteriorBands:
+    """Credible bands and predictive summaries from posterior draws.
+
+    Attributes
+    ----------
+    levels : tuple of float
+    profile : DataFrame
+        Columns ``label``, ``quantity`` (``"bohm_coefficient"`` [-] or
+        ``"frequency_hz"`` [1/s]), ``z_m``, ``median``, ``lower_<level>``,
+        ``upper_<level>``, ``map``: the anomalous profile per operating point.
+    ion_velocity : DataFrame
+        Columns ``label``, ``z_m``, ``median``, bands, ``map``, ``n_ok`` [m/s].
+    scalars : DataFrame
+        One row per (``label``, ``name``): ``unit``, ``median``, ``mean``, ``std``,
+        bands, ``map``, ``measured``, ``measured_sigma``, ``n_ok``, ``n_failed``.
+    draws : DataFrame
+        One row per forward-run draw: ``draw``, ``status``, ``reason``,
+        ``log_likelihood``, ``reduced_chi2`` and coefficients.
+    n_draws, n_ok, n_failed : int
+    """
+
+    levels: tuple[float, ...]
+    profile: pd.DataFrame
+    ion_velocity: pd.DataFrame
+    scalars: pd.DataFrame
+    draws: pd.DataFrame
+    n_draws: int = 0
+    n_ok: int = 0
+    n_failed: int = 0
+    extra: dict[str, Any] = field(default_factory=dict)
+
+    def save(self, folder: str | Path) -> Path:
+        """Write the tables as parquet files in ``folder``."""
+        folder = Path(folder)
+        folder.mkdir(parents=True, exist_ok=True)
+        for name in ("profile", "ion_velocity", "scalars", "draws"):
+            getattr(self, name).to_parquet(folder / f"bands_{name}.parquet", index=False)
+        return folder
+
+    @classmethod
+    def load(cls, folder: str | Path) -> PosteriorBands:
+        """Read tables written by :meth:`save`.
+
+        Raises
+        ------
+        InputDataError
+            If a table is missing.
+        """
+        folder = Path(folder)
+        tables = {}
+        for name in ("profile", "ion_velocity", "scalars", "draws"):
+            path = folder / f"bands_{name}.parquet"
+            if not path.exists():
+                raise InputDataError(
+                    f"bands folder {str(folder)!r}: missing {path.name}; write it with "
+                    "PosteriorBands.save."
+                )
+            tables[name] = pd.read_parquet(path)
+        levels = tuple(
+            sorted(float(c.split("_", 1)[1]) for c in tables["profile"].columns
+                   if c.startswith("lower_"))
+        )
+        draws = tables["draws"]
+        n_ok = int((draws["status"] == "ok").sum()) if len(draws) else 0
+        return cls(levels=levels, n_draws=len(draws), n_ok=n_ok, n_failed=len(draws) - n_ok,
+                   **tables)
+
+
+def _default_z(problem: Any) -> np.ndarray:
+    lows, highs = [], []
+    for point in problem.dataset.operating_points:
+        grid = problem.forward_model.grid(point)
+        if grid is not None and len(grid) > 1:
+            lows.append(float(np.min(grid)))
+            highs.append(float(np.max(grid)))
+        iv = problem.dataset[point.label].ion_velocity
+        if iv is not None:
+            lows.append(float(np.min(iv.z_m)))
+            highs.append(float(np.max(iv.z_m)))
+    if not lows:
+        raise InputDataError("posterior_bands: no grid or data positions; pass z_m explicitly.")
+    return np.linspace(min(lows), max(highs), 200)
+
+
+def _profile_frames(
+    problem: Any, coeffs: np.ndarray, map_c: np.ndarray, z: np.ndarray, levels: tuple[float, ...],
+    magnetic_field_T: Callable[[np.ndarray, Any], np.ndarray] | None,
+) -> pd.DataFrame:
+    frames = []
+    for point in problem.dataset.operating_points:
+        label = point.label
+        field_T = None if magnetic_field_T is None else np.asarray(magnetic_field_T(z, point))
+
+        def values(c: np.ndarray, lab: str = label, b: np.ndarray | None = field_T) -> np.ndarray:
+            prof = problem.profile_for(c, lab)
+            return prof(z) if b is None else prof.frequency(z, b)
+
+        draws = np.array([values(c) for c in coeffs])
+        frame = profile_band(draws, z, levels, best=values(map_c))
+        kind = problem.family.kind
+        quantity = "frequency_hz" if (kind == "frequency" or field_T is not None) \
+            else "bohm_coefficient"
+        frame.insert(0, "quantity", quantity)
+        frame.insert(0, "label", label)
+        frames.append(frame)
+    return pd.concat(frames, ignore_index=True)
+
+
+def _velocity_frame(
+    problem: Any, runs: Sequence[DrawRun], map_run: DrawRun, levels: tuple[float, ...]
+) -> pd.DataFrame:
+    frames = []
+    for label in problem.dataset.labels:
+        ok_preds = [r.predictions[label] for r in runs if r.ok and label in r.predictions]
+        ref = map_run.predictions.get(label) if map_run.ok else None
+        if ref is None or ref.z_m is None:
+            ref = next((p for p in ok_preds if p.z_m is not None), None)
+        if ref is None or ref.z_m is None:
+            continue
+        z = np.asarray(ref.z_m, dtype=float)
+        values = np.full((max(len(ok_preds), 1), len(z)), np.nan)
+        for i, p in enumerate(ok_preds):
+            if p.z_m is None:
+                continue
+            v = np.interp(z, p.z_m, p.ion_velocity_m_s, left=np.nan, right=np.nan)
+            values[i] = v
+        frame = pd.DataFrame({"label": label, "z_m": z, **quantile_band(values, levels)})
+        mp = map_run.predictions.get(label) if map_run.ok else None
+        frame["map"] = (np.interp(z, mp.z_m, mp.ion_velocity_m_s) if mp is not None
+                        and mp.z_m is not None else np.nan)
+        frame["n_ok"] = np.sum(np.isfinite(values), axis=0)
+        frames.append(frame)
+    cols = ["label", "z_m", "median", *band_columns(levels), "map", "n_ok"]
+    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=cols)
+
+
+def scalar_table(
+    labels: Sequence[str],
+    runs: Sequence[DrawRun],
+    levels: tuple[float, ...],
+    map_run: DrawRun | None = None,
+    measured: dict[str, dict[str, Any]] | None = None,
+) -> pd.DataFrame:
+    """Median, mean, std and intervals of every scalar output per label (ok draws only)."""
+    from ..data import SCALAR_UNITS
+
+    rows = []
+    for label in labels:
+        preds = [r.predictions.get(label) for r in runs]
+        ok_preds = [p for p, r in zip(preds, runs, strict=True)
+                    if r.ok and p is not None and p.ok]
+        names = sorted({k for p in ok_preds for k in p.scalars})
+        for name in names:
+            x = np.array([p.scalars[name] for p in ok_preds if name in p.scalars], dtype=float)
+            row: dict[str, Any] = {
+                "label": label, "name": name, "unit": SCALAR_UNITS.get(name, "-"),
+                "median": float(np.median(x)), "mean": float(np.mean(x)),
+                "std": float(np.std(x, ddof=1)) if len(x) > 1 else math.nan,
+            }
+            band = quantile_band(x[:, None], levels)
+            for key, val in band.items():
+                if key != "median":
+                    row[key] = float(val[0])
+            mp = map_run.predictions.get(label) if map_run is not None and map_run.ok else None
+            row["map"] = float(mp.scalars.get(name, math.nan)) if mp is not None else math.nan
+            obs = (measured or {}).get(label, {}).get(name)
+            row["measured"] = obs.value if obs is not None else math.nan
+            row["measured_sigma"] = obs.sigma if obs is not None else math.nan
+            row["n_ok"] = len(x)
+            row["n_failed"] = len(runs) - len(x)
+            rows.append(row)
+    return pd.DataFrame(rows)
+
+
+def posterior_bands(
+    problem: Any,
+    posterior: PosteriorResult,
+    z_m: np.ndarray | None = None,
+    levels: Sequence[float] = (0.68, 0.95),
+    n_draws: int = 32,
+    executor: Any = None,
+    *,
+    n_profile_draws: int = 1000,
+    seed: int | None = 0,
+    magnetic_field_T: Callable[[np.ndarray, Any], np.ndarray] | None = None,
+) -> PosteriorBands:
+    """Bands of the profile, the ion velocity and the scalar outputs.
+
+    Parameters
+    ----------
+    problem : CalibrationProblem
+    posterior : PosteriorResult
+    z_m : ndarray, optional
+        Positions [m] of the profile band; default 200 points over the model
+        grid and data range.
+    levels : sequence of float, default=(0.68, 0.95)
+        Central credible levels.
+    n_draws : int, default=32
+        Posterior draws run through the forward model (each runs every
+        operating point: ``n_draws + 1`` trials including the MAP). 0 gives
+        the profile band only.
+    executor : Executor or dask Client, optional
+        Runs the draws in parallel.
+    n_profile_draws : int, default=1000
+        Draws for the profile band (cheap: no forward run).
+    seed : int or None, default=0
+    magnetic_field_T : callable, optional
+        ``magnetic_field_T(z_m, point) -> B [T]`` to convert a Bohm-type
+        profile into a frequency [1/s]; without it a Bohm-type profile band
+        is of the coefficient [-].
+
+    Returns
+    -------
+    PosteriorBands
+    """
+    levels_t = check_levels(levels, "levels")
+    if int(n_draws) != n_draws or n_draws < 0:
+        raise InputDataError(f"posterior_bands: n_draws must be an integer >= 0; got {n_draws!r}.")
+    if list(posterior.names) != list(problem.names):
+        raise InputDataError(
+            f"posterior_bands: the posterior's parameters {list(posterior.names)} do not match "
+            f"the problem's {list(problem.names)}; use the problem the posterior was sampled on."
+        )
+    z = _default_z(problem) if z_m is None else np.asarray(z_m, dtype=float).reshape(-1)
+    rng = np.random.default_rng(seed)
+    map_c = posterior.map_vector
+    prof_c = posterior.draw(min(int(n_profile_draws), len(posterior.samples)),
+                            seed=int(rng.integers(2**31)))
+    profile = _profile_frames(problem, prof_c, map_c, z, levels_t, magnetic_field_T)
+    coeffs = posterior.draw(int(n_draws), seed=int(rng.integers(2**31))) if n_draws else \
+        np.zeros((0, len(map_c)))
+    runs = evaluate_many(problem, np.vstack([map_c[None, :], coeffs]), executor)
+    map_run, draw_runs = runs[0], runs[1:]
+    measured = {d.label: dict(d.scalars) for d in problem.dataset}
+    velocity = _velocity_frame(problem, draw_runs, map_run, levels_t)
+    scalars = scalar_table(problem.dataset.labels, draw_runs, levels_t, map_run, measured)
+    draws = pd.DataFrame({
+        "draw": np.arange(len(draw_runs)),
+        "status": [r.status for r in draw_runs],
+        "reason": [r.reason for r in draw_runs],
+        "log_likelihood": [r.log_likelihood if r.ok else math.nan for r in draw_runs],
+        "reduced_chi2": [r.reduced_chi2 if r.ok else math.nan for r in draw_runs],
+    })
+    for j, name in enumerate(problem.names):
+        draws[name] = coeffs[:, j] if len(coeffs) else []
+    n_ok = int(sum(r.ok for r in draw_runs))
+    return PosteriorBands(
+        levels=levels_t, profile=profile, ion_velocity=velocity, scalars=scalars, draws=draws,
+        n_draws=len(draw_runs), n_ok=n_ok, n_failed=len(draw_runs) - n_ok,
+        extra={"map_status": map_run.status, "map_reason": map_run.reason},
+    )

@@ -1,0 +1,197 @@
+"""Settings of posterior sampling, checked once when they are made."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass, field
+from typing import Any, Literal
+
+from ..exceptions import InputDataError
+
+__all__ = ["PosteriorSettings"]
+
+SamplingMethod = Literal["surrogate", "exact"]
+
+
+def _int_at_least(name: str, value: Any, low: int, fix: str) -> int:
+    if isinstance(value, bool) or not isinstance(value, int | float) or int(value) != value:
+        raise InputDataError(f"PosteriorSettings.{name} must be an integer; got {value!r}.")
+    if int(value) < low:
+        raise InputDataError(
+            f"PosteriorSettings.{name} must be >= {low}; got {value!r}. {fix}"
+        )
+    return int(value)
+
+
+def _positive_float(name: str, value: Any, fix: str = "") -> float:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InputDataError(f"PosteriorSettings.{name} must be a number; got {value!r}.") from None
+    if not math.isfinite(v) or v <= 0:
+        raise InputDataError(
+            f"PosteriorSettings.{name} must be finite and > 0; got {value!r}. {fix}".rstrip()
+        )
+    return v
+
+
+def check_levels(levels: Any, field_name: str = "band_levels") -> tuple[float, ...]:
+    """Validate credible levels: a non-empty sequence of numbers in (0, 1), returned sorted."""
+    try:
+        values = tuple(float(v) for v in levels)
+    except (TypeError, ValueError):
+        raise InputDataError(
+            f"{field_name} must be a sequence of probabilities such as (0.68, 0.95); "
+            f"got {levels!r}."
+        ) from None
+    if not values:
+        raise InputDataError(f"{field_name} must hold at least one level; got {levels!r}.")
+    bad = [v for v in values if not (0.0 < v < 1.0)]
+    if bad:
+        raise InputDataError(
+            f"{field_name} must lie strictly between 0 and 1 (0.95 for a 95 % band); got {bad}."
+        )
+    return tuple(sorted(set(values)))
+
+
+@dataclass(frozen=True)
+class PosteriorSettings:
+    """How the posterior is sampled and checked.
+
+    Parameters
+    ----------
+    method : {"surrogate", "exact"}, default="surrogate"
+        ``"surrogate"``: sample on a Gaussian-process model of the
+        log-likelihood fitted to the trials (cheap; the only practical choice
+        with a costly forward model). ``"exact"``: every sampler step runs the
+        forward model (``n_walkers * n_steps`` runs; for cheap models and tests).
+    n_walkers : int, default=32
+        Walkers of the affine-invariant ensemble sampler, per GP realisation.
+        Must be even and at least twice the number of coefficients (the
+        sampler's requirement).
+    n_steps : int, default=2000
+        Steps per walker, burn-in included.
+    burn_in : int, default=500
+        Leading steps discarded, ``0 <= burn_in < n_steps``.
+    thin : int, default=1
+        Keep every ``thin``-th step after burn-in.
+    n_gp_draws : int, default=8
+        Number of GP realisations (pathwise posterior function samples) the
+        posterior is sampled on and pooled over, so that the surrogate's own
+        uncertainty widens the posterior. 0 samples on the GP mean only.
+    n_features : int, default=1024
+        Random Fourier features per GP realisation.
+    n_refine_rounds : int, default=1
+        Rounds of surrogate refinement: each runs ``n_refine_draws`` posterior
+        draws through the forward model, adds them to the GP's training data,
+        refits and samples again.
+    n_refine_draws : int, default=16
+        Forward runs per refinement round.
+    n_check_draws : int, default=16
+        Posterior draws run through the forward model for the posterior
+        predictive check after the last sampling (0 skips the check).
+    check_tolerance_nats : float, default=1.0
+        Extra tolerance [nats] added in quadrature to the surrogate's predictive
+        standard deviation when comparing it to a forward run.
+    check_max_disagree_fraction : float, default=0.25
+        Warn when more than this fraction of checked draws disagree (|z| > 3).
+    check_max_failed_fraction : float, default=0.25
+        Warn when more than this fraction of checked draws fail to run.
+    log_likelihood_floor_nats : float, default=40.0
+        Trials whose log-likelihood lies more than this below the best are
+        clipped to ``best - floor`` before the GP fit: such regions carry no
+        posterior mass (``exp(-40)``), and clipping keeps the GP's scale set by
+        the region that matters.
+    max_gp_trials : int, default=400
+        At most this many ok trials (the best ones) train the GP.
+    band_levels : tuple of float, default=(0.68, 0.95)
+        Central credible levels of intervals and bands.
+    seed : int or None, default=0
+        Seed of all random draws (walker starts, GP realisations, draw picks).
+    """
+
+    method: SamplingMethod = "surrogate"
+    n_walkers: int = 32
+    n_steps: int = 2000
+    burn_in: int = 500
+    thin: int = 1
+    n_gp_draws: int = 8
+    n_features: int = 1024
+    n_refine_rounds: int = 1
+    n_refine_draws: int = 16
+    n_check_draws: int = 16
+    check_tolerance_nats: float = 1.0
+    check_max_disagree_fraction: float = 0.25
+    check_max_failed_fraction: float = 0.25
+    log_likelihood_floor_nats: float = 40.0
+    max_gp_trials: int = 400
+    band_levels: tuple[float, ...] = field(default=(0.68, 0.95))
+    seed: int | None = 0
+
+    def __post_init__(self) -> None:
+        if self.method not in ("surrogate", "exact"):
+            raise InputDataError(
+                f"PosteriorSettings.method must be 'surrogate' or 'exact'; got {self.method!r}."
+            )
+        nw = _int_at_least("n_walkers", self.n_walkers, 2, "Use an even number such as 32.")
+        if nw % 2:
+            raise InputDataError(
+                f"PosteriorSettings.n_walkers must be even (the ensemble is split in halves); "
+                f"got {nw}. Use {nw + 1}."
+            )
+        object.__setattr__(self, "n_walkers", nw)
+        n_steps = _int_at_least("n_steps", self.n_steps, 2, "Use a few thousand steps.")
+        object.__setattr__(self, "n_steps", n_steps)
+        burn = _int_at_least("burn_in", self.burn_in, 0, "Use 0 for no burn-in.")
+        if burn >= n_steps:
+            raise InputDataError(
+                f"PosteriorSettings.burn_in must be smaller than n_steps = {n_steps}; got {burn}. "
+                "Lower burn_in or raise n_steps."
+            )
+        object.__setattr__(self, "burn_in", burn)
+        object.__setattr__(self, "thin", _int_at_least("thin", self.thin, 1, "Use 1 to keep all."))
+        for name, low, fix in (
+            ("n_gp_draws", 0, "Use 0 to sample on the GP mean only."),
+            ("n_features", 16, "Use about 1024."),
+            ("n_refine_rounds", 0, "Use 0 for no refinement."),
+            ("n_refine_draws", 1, "Use about 16."),
+            ("n_check_draws", 0, "Use 0 to skip the check."),
+            ("max_gp_trials", 4, "Use a few hundred."),
+        ):
+            object.__setattr__(self, name, _int_at_least(name, getattr(self, name), low, fix))
+        object.__setattr__(
+            self, "check_tolerance_nats",
+            _positive_float("check_tolerance_nats", self.check_tolerance_nats),
+        )
+        object.__setattr__(
+            self, "log_likelihood_floor_nats",
+            _positive_float("log_likelihood_floor_nats", self.log_likelihood_floor_nats,
+                            "Use about 40."),
+        )
+        for name in ("check_max_disagree_fraction", "check_max_failed_fraction"):
+            v = getattr(self, name)
+            try:
+                fv = float(v)
+            except (TypeError, ValueError):
+                raise InputDataError(f"PosteriorSettings.{name} must be a number; got {v!r}.") from None
+            if not 0.0 <= fv <= 1.0:
+                raise InputDataError(
+                    f"PosteriorSettings.{name} must lie in [0, 1]; got {v!r}."
+                )
+            object.__setattr__(self, name, fv)
+        object.__setattr__(self, "band_levels", check_levels(self.band_levels,
+                                                             "PosteriorSettings.band_levels"))
+        if self.seed is not None:
+            object.__setattr__(self, "seed", _int_at_least("seed", self.seed, 0,
+                                                           "Use a non-negative integer or None."))
+
+    @property
+    def n_kept_steps(self) -> int:
+        """Steps kept per walker after burn-in and thinning."""
+        return len(range(self.burn_in, self.n_steps, self.thin))
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain-dict form (JSON-ready)."""
+        d = asdict(self)
+        d["band_levels"] = list(self.band_levels)
+        return d
