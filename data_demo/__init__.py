@@ -1,0 +1,1 @@
+"""Bundled demo scenario (synthetic data of the invented Sorrel-3 thruster)."""
