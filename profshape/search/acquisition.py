@@ -16,14 +16,18 @@ from the best of ``raw_samples`` random points).
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import torch
 from botorch.acquisition import AcquisitionFunction, LogExpectedImprovement
 from botorch.acquisition.analytic import LogConstrainedExpectedImprovement
 from botorch.acquisition.logei import qLogNoisyExpectedImprovement
 from botorch.acquisition.objective import GenericMCObjective
+from botorch.exceptions.warnings import OptimizationWarning
 from botorch.optim import optimize_acqf
 from botorch.sampling import SobolQMCNormalSampler
+from linear_operator.utils.warnings import NumericalWarning
 
 from .surrogate import DTYPE, FEASIBILITY_THRESHOLD
 
@@ -117,7 +121,11 @@ def optimize_acquisition(
         Acquisition value(s) at the candidates.
     """
     bounds = torch.stack([torch.zeros(dim, dtype=DTYPE), torch.ones(dim, dtype=DTYPE)])
-    with torch.random.fork_rng():
+    with torch.random.fork_rng(), warnings.catch_warnings():
+        # restarts that stop early are retried by botorch itself; keep the log quiet
+        warnings.simplefilter("ignore", RuntimeWarning)
+        warnings.simplefilter("ignore", OptimizationWarning)
+        warnings.simplefilter("ignore", NumericalWarning)
         torch.manual_seed(seed)
         cand, val = optimize_acqf(
             acq,

@@ -285,6 +285,12 @@ class Search:
         self.fit()
         u_ok, y_ok = self._train
         seed = derived_seed(self.settings.seed, "proposal", self._next_trial)
+        with torch.random.fork_rng():
+            torch.manual_seed(seed)
+            return self._optimize(q, pending_u, u_ok, y_ok, seed)
+
+    def _optimize(self, q: int, pending_u: np.ndarray, u_ok: np.ndarray, y_ok: np.ndarray,
+                  seed: int) -> np.ndarray:
         self.acquisition_ = make_acquisition(
             self.model_,
             u_ok,
