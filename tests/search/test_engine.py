@@ -130,9 +130,9 @@ def test_tell_and_settings_errors_name_the_field():
     s = Search(SearchSpace(["x"], [[0, 1]]), SearchSettings(budget=3))
     with pytest.raises(InputDataError, match="trial 7 is not pending"):
         s.tell(7, 1.0)
-    with pytest.raises(ConfigError, match="SearchSettings.budget must be >= 1"):
+    with pytest.raises(ConfigError, match=r"SearchSettings.budget must be >= 1"):
         SearchSettings(budget=0)
-    with pytest.raises(ConfigError, match="SearchSettings.target_reduced_chi2"):
+    with pytest.raises(ConfigError, match=r"SearchSettings.target_reduced_chi2"):
         SearchSettings(budget=3, target_reduced_chi2=-1.0)
     with pytest.raises(ConfigError, match="raw_samples"):
         SearchSettings(budget=3, num_restarts=10, raw_samples=5)
