@@ -18,17 +18,7 @@ from profshape.posterior import (
 from profshape.posterior.sampler import run_ensemble
 from profshape.posterior.surrogate import _matern52, fit_log_likelihood_surrogate
 
-from ._linear import exact_posterior, make_problem, make_trials
-
-TRUTH = np.array([-1.0, 0.4])
-
-
-@pytest.fixture(scope="module")
-def linear_case():
-    problem, _ = make_problem(TRUTH, seed=3)
-    trials = make_trials(problem, seed=1)
-    return problem, trials
-
+from ._linear import exact_posterior
 
 def _within_mc_error(samples: np.ndarray, mean: np.ndarray, cov: np.ndarray, ess: float,
                      mean_tol: float = 5.0, cov_rtol: float | None = None) -> None:
