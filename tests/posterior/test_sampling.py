@@ -20,6 +20,7 @@ from profshape.posterior.surrogate import _matern52, fit_log_likelihood_surrogat
 
 from ._linear import exact_posterior
 
+
 def _within_mc_error(samples: np.ndarray, mean: np.ndarray, cov: np.ndarray, ess: float,
                      mean_tol: float = 5.0, cov_rtol: float | None = None) -> None:
     """Sample mean within ``mean_tol`` Monte Carlo standard errors, covariance within rtol."""
