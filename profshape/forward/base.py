@@ -168,7 +168,7 @@ class ForwardModel(ABC):
         start = time.perf_counter()
         try:
             result = self.run(profile, point)
-        except Exception as exc:  # a failed trial, never a crash of the campaign
+        except (Exception, SystemExit) as exc:  # a failed trial, never a crash of the campaign
             tail = "".join(traceback.format_exception(exc)[-3:]).strip()
             return Prediction.failure(
                 "failed", f"{type(exc).__name__}: {exc} | {tail[-600:]}",
