@@ -40,6 +40,7 @@ NONFINITE_TEMPERATURE = 2
 NONFINITE_DENSITY = 3
 NONFINITE_ION_FLUX = 4
 TIME_STEP_COLLAPSE = 5
+VELOCITY_RUNAWAY = 6
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
@@ -54,6 +55,15 @@ def _interp(table, t0, inv_dt, x):
     k = int(s)
     f = s - k
     return table[k] * (1.0 - f) + table[k + 1] * f
+
+
+@njit(cache=True, inline="always", fastmath=_FM)
+def _minmod(a, b):
+    if a * b <= 0.0:
+        return 0.0
+    if abs(a) < abs(b):
+        return a
+    return b
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
@@ -79,7 +89,7 @@ def march(
     dz, area, ion_mass, u_n, gamma_in, v_d, te_cath,
     omega_ce, nu_anom, wall_mask, wall_nu_factor, wall_loss_per_te,
     rate_t0, rate_inv_dt, k_iz_tab, k_loss_tab, k_en_tab,
-    n_floor, te_floor, te_ceiling, cfl, dt_max,
+    n_floor, te_floor, te_ceiling, cfl, dt_max, muscl, u_guard,
     t_start, t_end, sample_dt, chunk_dt,
     acc,  # (n_chunks, n_fields, N) time-weighted sums per chunk, modified in place
     acc_g,  # (n_chunks, n_global) time-weighted sums of global quantities per chunk
@@ -98,7 +108,11 @@ def march(
     ne = np.empty(n)
     ui = np.empty(n)
     cs = np.empty(n)
-    mu = np.empty(n)
+    inv_mu = np.empty(n)
+    inv_ne = np.empty(n)
+    lnl = np.empty(n)
+    sqrt_e_over_m = math.sqrt(e_over_m)
+    n_tab = k_iz_tab.shape[0]
     kiz = np.empty(n)
     kloss = np.empty(n)
     nu_tot = np.empty(n)
@@ -119,6 +133,8 @@ def march(
     nn_new = np.empty(n)
     ne_new = np.empty(n)
     phi = np.empty(n + 1)
+    sn = np.empty(n)
+    su = np.empty(n)
 
     t = t_start
     steps = 0
@@ -137,27 +153,46 @@ def march(
                 gi[i] = 0.0
                 floor_hits += 1
             ne[i] = ni[i]
-            ui[i] = gi[i] / ne[i]
+            inv_ne[i] = 1.0 / ni[i]
+            ui[i] = gi[i] * inv_ne[i]
             tt = te[i]
             cs[i] = math.sqrt(e_over_m * tt)
             a = abs(ui[i]) + cs[i]
             if a > amax:
                 amax = a
-            kiz[i] = _interp(k_iz_tab, rate_t0, rate_inv_dt, tt)
-            kloss[i] = _interp(k_loss_tab, rate_t0, rate_inv_dt, tt)
-            nu_w = wall_mask[i] * wall_nu_factor * cs[i]
-            nu = nn[i] * _interp(k_en_tab, rate_t0, rate_inv_dt, tt) + nu_ei_nrl(ne[i], tt)
-            nu += nu_w + nu_anom[i]
+            # one table index for the three rate tables
+            s_t = (tt - rate_t0) * rate_inv_dt
+            if s_t <= 0.0:
+                s_t = 0.0
+            elif s_t >= n_tab - 1.001:
+                s_t = n_tab - 1.001
+            kt = int(s_t)
+            ft = s_t - kt
+            kiz[i] = k_iz_tab[kt] + ft * (k_iz_tab[kt + 1] - k_iz_tab[kt])
+            kloss[i] = k_loss_tab[kt] + ft * (k_loss_tab[kt + 1] - k_loss_tab[kt])
+            ken = k_en_tab[kt] + ft * (k_en_tab[kt + 1] - k_en_tab[kt])
+            if steps % 8 == 0:  # the Coulomb logarithm varies slowly: refresh every 8 steps
+                lnl[i] = coulomb_log_nrl(ne[i], tt)
+            nu_ei = 2.91e-12 * ne[i] * lnl[i] / (tt * cs[i]) * sqrt_e_over_m
+            nu = nn[i] * ken + nu_ei + wall_mask[i] * wall_nu_factor * cs[i]
+            nu += nu_anom[i]
             nu_tot[i] = nu
-            om = omega_ce[i] / nu
-            mu[i] = mu_pref / nu / (1.0 + om * om)
+            om = omega_ce[i]
+            # mu = (e/m) / nu / (1 + (om/nu)^2) = (e/m) nu / (nu^2 + om^2)
+            inv_mu[i] = (nu * nu + om * om) / (mu_pref * nu)
             p[i] = ne[i] * tt
+        if amax > u_guard:
+            k_bad = 0
+            for i in range(n):
+                if abs(ui[i]) + cs[i] >= amax:
+                    k_bad = i
+            return VELOCITY_RUNAWAY, steps, t, floor_hits, n_samp, k_bad
         dt = cfl * dz / amax
         if dt > dt_max:
             dt = dt_max
         if t + dt > t_end:
             dt = t_end - t
-        if dt <= 1e-15:
+        if dt <= 1e-13:
             return TIME_STEP_COLLAPSE, steps, t, floor_hits, n_samp, 0
 
         # ---- 2. Ohm's law and the voltage constraint --------------------
@@ -169,14 +204,14 @@ def march(
         s2 = 0.0
         s3 = 0.0
         for i in range(n):
-            s1 += dz / (ne[i] * mu[i])
-            s2 += ui[i] * dz / mu[i]
-            s3 += dp[i] * dz / ne[i]
-        jflux = (v_d + s2 + s3) / s1  # j / e  [m^-2 s^-1]
+            s1 += inv_ne[i] * inv_mu[i]
+            s2 += ui[i] * inv_mu[i]
+            s3 += dp[i] * inv_ne[i]
+        jflux = (v_d / dz + s2 + s3) / s1  # j / e  [m^-2 s^-1]
         if not math.isfinite(jflux):
             return NONFINITE_CURRENT, steps, t, floor_hits, n_samp, 0
         for i in range(n):
-            ef[i] = (jflux / ne[i] - ui[i]) / mu[i] - dp[i] / ne[i]
+            ef[i] = (jflux * inv_ne[i] - ui[i]) * inv_mu[i] - dp[i] * inv_ne[i]
         phi[0] = v_d
         for i in range(n):
             phi[i + 1] = phi[i] - ef[i] * dz
@@ -187,12 +222,31 @@ def march(
             ub = -cs[0]
         fn[0] = ne[0] * ub
         fg[0] = ne[0] * ub * ub
+        # MUSCL reconstruction of n and u (minmod slopes), zero slope in end cells
+        sn[0] = 0.0
+        su[0] = 0.0
+        sn[n - 1] = 0.0
+        su[n - 1] = 0.0
+        if muscl:
+            for i in range(1, n - 1):
+                sn[i] = _minmod(ni[i] - ni[i - 1], ni[i + 1] - ni[i])
+                su[i] = _minmod(ui[i] - ui[i - 1], ui[i + 1] - ui[i])
+        else:
+            for i in range(1, n - 1):
+                sn[i] = 0.0
+                su[i] = 0.0
         for f in range(1, n):
             l = f - 1
             r = f
-            a = max(abs(ui[l]) + cs[l], abs(ui[r]) + cs[r])
-            fn[f] = 0.5 * (gi[l] + gi[r]) - 0.5 * a * (ni[r] - ni[l])
-            fg[f] = 0.5 * (gi[l] * ui[l] + gi[r] * ui[r]) - 0.5 * a * (gi[r] - gi[l])
+            nl = ni[l] + 0.5 * sn[l]
+            ul = ui[l] + 0.5 * su[l]
+            nr = ni[r] - 0.5 * sn[r]
+            ur = ui[r] - 0.5 * su[r]
+            a = max(abs(ul) + cs[l], abs(ur) + cs[r])
+            gl = nl * ul
+            gr = nr * ur
+            fn[f] = 0.5 * (gl + gr) - 0.5 * a * (nr - nl)
+            fg[f] = 0.5 * (gl * ul + gr * ur) - 0.5 * a * (gr - gl)
         fn[n] = gi[n - 1]
         fg[n] = gi[n - 1] * ui[n - 1]
         if fn[n] < 0.0:  # never let the cathode plane feed ions in
@@ -222,15 +276,15 @@ def march(
             gi[i] = gi_new
         # ---- 6. electron energy (implicit in T_e) ------------------------
         for i in range(n):
-            kap[i] = 2.5 * ne[i] * mu[i] * te[i]  # cross-field conductivity [1/(m s)]
+            kap[i] = 2.5 * ne[i] * te[i] / inv_mu[i]  # cross-field conductivity [1/(m s)]
             ge = ui[i] * ne[i] - jflux  # electron flux at the cell [m^-2 s^-1]
             h = -ge * ef[i]  # Ohmic heating j_e . E [eV m^-3 s^-1]
-            tt = te[i]
+            inv_t = 1.0 / te[i]
             # losses: inelastic (ionization + excitation) and wall (sheath) losses
             lw = wall_mask[i] * wall_nu_factor * cs[i] * wall_loss_per_te
-            lossc[i] = ne[i] * nn[i] * kloss[i] / tt + ne[i] * lw
+            lossc[i] = ne[i] * nn[i] * kloss[i] * inv_t + ne[i] * lw
             if h < 0.0:
-                lossc[i] += -h / tt
+                lossc[i] += -h * inv_t
                 h = 0.0
             heat[i] = h
         nnew_floor = 0
@@ -313,7 +367,7 @@ def march(
             a2[5, i] += dt * ef[i]
             a2[6, i] += dt * (ne[i] * ui[i] - jflux)  # electron flux from the current
             # electron flux from Ohm's law evaluated independently of the current
-            a2[7, i] += dt * (-mu[i] * (ne[i] * ef[i] + dp[i]))
+            a2[7, i] += dt * (-(ne[i] * ef[i] + dp[i]) / inv_mu[i])
             a2[8, i] += dt * nu_tot[i]
             a2[9, i] += dt * ne[i] * ui[i] * ui[i]
         cur = _E * area * jflux

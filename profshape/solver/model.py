@@ -91,7 +91,9 @@ _STATUS_TEXT = {
     _kernels.NONFINITE_TEMPERATURE: "electron temperature",
     _kernels.NONFINITE_DENSITY: "plasma density",
     _kernels.NONFINITE_ION_FLUX: "ion flux",
-    _kernels.TIME_STEP_COLLAPSE: "time step (collapsed below 1e-15 s)",
+    _kernels.TIME_STEP_COLLAPSE: "time step (collapsed below 1e-13 s)",
+    _kernels.VELOCITY_RUNAWAY: "ion speed (numerical instability: |u_i| + c_s exceeded twice the "
+    "energy bound sqrt(2 e V_d / M) plus 20 km/s)",
 }
 
 
@@ -220,43 +222,99 @@ def solve(
         return _failed(f"internal error: {type(exc).__name__}: {exc}", z, t0)
 
 
-def _solve(device, point, profile, settings, prop, z, b, t0) -> SolverResult:
+def _anomalous(profile: AnomalousProfile, z: np.ndarray, b: np.ndarray):
+    """Anomalous frequency on z, or (None, reason) if the profile is unusable."""
     n = z.size
     try:
-        nu_anom = np.asarray(profile.frequency(z, b), dtype=float)
+        nu = np.asarray(profile.frequency(z, b), dtype=float)
     except Exception as exc:
-        return _failed(f"the anomalous profile raised {type(exc).__name__}: {exc}", z, t0)
-    if nu_anom.shape != (n,):
-        nu_anom = np.broadcast_to(nu_anom, (n,)).copy() if nu_anom.size == 1 else None
-        if nu_anom is None:
-            return _failed(f"the anomalous profile returned shape != ({n},)", z, t0)
-    if not np.all(np.isfinite(nu_anom)) or np.any(nu_anom < 0.0):
-        bad = int(np.flatnonzero(~np.isfinite(nu_anom) | (nu_anom < 0.0))[0])
-        return _failed(
+        return None, f"the anomalous profile raised {type(exc).__name__}: {exc}"
+    if nu.shape != (n,):
+        if nu.size != 1:
+            return None, f"the anomalous profile returned shape {nu.shape}, expected ({n},)"
+        nu = np.full(n, float(nu.ravel()[0]))
+    if not np.all(np.isfinite(nu)) or np.any(nu < 0.0):
+        bad = int(np.flatnonzero(~np.isfinite(nu) | (nu < 0.0))[0])
+        return None, (
             f"the anomalous profile is negative or non-finite at z = {z[bad]:.4g} m "
-            f"({nu_anom[bad]!r} 1/s)",
-            z,
-            t0,
+            f"({nu[bad]!r} 1/s)"
         )
-    nu_anom = np.ascontiguousarray(nu_anom)
+    return np.ascontiguousarray(nu), ""
 
-    mass = prop.mass_kg
-    area = device.channel_area_m2
-    mdot = point.anode_mass_flow_kg_s
-    v_d = point.discharge_voltage_V
-    u_n = math.sqrt(8.0 * constants.k * device.anode_temperature_K / (math.pi * mass))
-    gamma_in = mdot / (mass * area)
-    v_max = prop.max_ion_velocity(v_d)
-    omega_ce = np.ascontiguousarray(electron_gyrofrequency(b))
-    wall_mask = (z < device.channel_length_m).astype(float)
-    sigma = settings.wall_secondary_yield
-    wall_nu_factor = settings.wall_loss_scale * 1.22 / (device.channel_width_m * (1.0 - sigma))
-    phi_over_te = max(math.log((1.0 - sigma) * math.sqrt(mass / (2.0 * math.pi * constants.m_e))), 0.0)
-    wall_loss_per_te = 2.0 + (1.0 - sigma) * phi_over_te
-    rates = rate_set(prop.name)
-    dz = device.domain_length_m / n
 
-    nn, ni, gi, te = _initial_state(z, device, gamma_in, u_n, v_max)
+class _Case:
+    """Everything the kernel needs on one grid."""
+
+    def __init__(self, device, point, profile, settings, prop, n: int) -> None:
+        sets = settings
+        self.settings = sets
+        self.device = device
+        self.n = n
+        self.dz = device.domain_length_m / n
+        self.z = (np.arange(n) + 0.5) * self.dz
+        self.b = np.asarray(device.magnetic_field(self.z), dtype=float) * point.magnetic_field_scale
+        self.nu_anom, self.problem = _anomalous(profile, self.z, self.b)
+        self.mass = prop.mass_kg
+        self.area = device.channel_area_m2
+        self.v_d = point.discharge_voltage_V
+        self.u_n = math.sqrt(
+            8.0 * constants.k * device.anode_temperature_K / (math.pi * self.mass)
+        )
+        self.gamma_in = point.anode_mass_flow_kg_s / (self.mass * self.area)
+        self.v_max = prop.max_ion_velocity(self.v_d)
+        self.omega_ce = np.ascontiguousarray(electron_gyrofrequency(self.b))
+        self.wall_mask = (self.z < device.channel_length_m).astype(float)
+        sigma = sets.wall_secondary_yield
+        self.wall_nu_factor = sets.wall_loss_scale * 1.22 / (device.channel_width_m * (1.0 - sigma))
+        ratio = (1.0 - sigma) * math.sqrt(self.mass / (2.0 * math.pi * constants.m_e))
+        self.wall_loss_per_te = 2.0 + (1.0 - sigma) * max(math.log(ratio), 0.0)
+        self.rates = rate_set(prop.name)
+
+    def initial_state(self):
+        return _initial_state(self.z, self.device, self.gamma_in, self.u_n, self.v_max)
+
+    def march(self, state, t, t_end, chunk_dt, acc, acc_g, samples):
+        sets, r = self.settings, self.rates
+        nn, ni, gi, te = state
+        return _kernels.march(
+            nn, ni, gi, te, self.dz, self.area, self.mass, self.u_n, self.gamma_in, self.v_d,
+            self.device.cathode_electron_temperature_eV, self.omega_ce, self.nu_anom,
+            self.wall_mask, self.wall_nu_factor, self.wall_loss_per_te, r.t0_eV,
+            1.0 / r.dt_eV, r.ionization_m3_s, r.energy_loss_eV_m3_s, r.momentum_m3_s,
+            sets.density_floor_m3, sets.electron_temperature_floor_eV,
+            sets.electron_temperature_ceiling_eV, sets.cfl, sets.max_time_step_s,
+            sets.ion_scheme_order == 2, 2.0 * self.v_max + 2e4,
+            t, t_end, sets.sample_interval_s, chunk_dt, acc, acc_g, samples,
+        )  # fmt: skip
+
+
+def _warm_start(device, point, profile, settings, prop, fine: _Case):
+    """March a coarser grid through the start-up transient; state on the fine grid or None."""
+    n_coarse = fine.n // settings.warmup_coarsening
+    if settings.warmup_coarsening == 1 or settings.warmup_time_s <= 0.0 or n_coarse < 20:
+        return None
+    coarse = _Case(device, point, profile, settings, prop, n_coarse)
+    if coarse.nu_anom is None:
+        return None
+    state = coarse.initial_state()
+    acc = np.zeros((1, 10, n_coarse))
+    acc_g = np.zeros((1, 8))
+    status = coarse.march(state, 0.0, settings.warmup_time_s, 1.0, acc, acc_g, np.zeros(1))[0]
+    if status != _kernels.OK or not all(np.all(np.isfinite(x)) for x in state):
+        return None
+    return tuple(np.ascontiguousarray(np.interp(fine.z, coarse.z, x)) for x in state)
+
+
+def _solve(device, point, profile, settings, prop, z, b, t0) -> SolverResult:
+    case = _Case(device, point, profile, settings, prop, z.size)
+    if case.nu_anom is None:
+        return _failed(case.problem, z, t0)
+    n = case.n
+    nu_anom, area, mass, u_n = case.nu_anom, case.area, case.mass, case.u_n
+    state = _warm_start(device, point, profile, settings, prop, case)
+    warm = state is not None
+    if state is None:
+        state = case.initial_state()
     plan = _Plan(settings)
     acc = np.zeros((plan.n_chunks, 10, n))
     acc_g = np.zeros((plan.n_chunks, 8))
@@ -271,21 +329,15 @@ def _solve(device, point, profile, settings, prop, z, b, t0) -> SolverResult:
         c1 = min(c0 + plan.chunks_per_call, plan.n_chunks_run)
         t_end = c1 * plan.chunk_dt
         s0 = round(t / settings.sample_interval_s)
-        status, steps, t_new, hits, _n_samp, bad = _kernels.march(
-            nn, ni, gi, te, dz, area, mass, u_n, gamma_in, v_d,
-            device.cathode_electron_temperature_eV, omega_ce, nu_anom, wall_mask,
-            wall_nu_factor, wall_loss_per_te, rates.t0_eV, 1.0 / rates.dt_eV,
-            rates.ionization_m3_s, rates.energy_loss_eV_m3_s, rates.momentum_m3_s,
-            settings.density_floor_m3, settings.electron_temperature_floor_eV,
-            settings.electron_temperature_ceiling_eV, settings.cfl, settings.max_time_step_s,
-            t, t_end, settings.sample_interval_s, plan.chunk_dt,
-            acc[c0:c1], acc_g[c0:c1], samples[s0:],
-        )  # fmt: skip
+        status, steps, t_new, hits, _n_samp, bad = case.march(
+            state, t, t_end, plan.chunk_dt, acc[c0:c1], acc_g[c0:c1], samples[s0:]
+        )
         steps_total += steps
         if status != _kernels.OK:
             what = _STATUS_TEXT.get(status, f"status {status}")
+            verb = "ran away" if status == _kernels.VELOCITY_RUNAWAY else "diverged (non-finite)"
             return _failed(
-                f"{what} diverged (non-finite) at t = {t_new:.4g} s, step {steps_total}, "
+                f"{what} {verb} at t = {t_new:.4g} s, step {steps_total}, "
                 f"near z = {z[bad]:.4g} m",
                 z,
                 t0,
@@ -305,10 +357,12 @@ def _solve(device, point, profile, settings, prop, z, b, t0) -> SolverResult:
         reason = f"time limit {settings.max_time_s:.3g} s reached: {reason}"
     if span is None:
         span = (max(c0 - settings.n_average_windows * plan.chunks_per_window, 0), c0, 0)
-    return _assemble(
-        acc, acc_g, samples, span, plan, converged, reason, device, point, prop, z, b,
+    result = _assemble(
+        acc, acc_g, samples, span, plan, converged, reason, device, point, prop, z, case.b,
         nu_anom, area, mass, u_n, settings, t, steps_total, t0,
     )  # fmt: skip
+    result.globals["warm_start"] = warm
+    return result
 
 
 class _Plan:

@@ -9,11 +9,17 @@ from ..exceptions import InputDataError
 
 __all__ = ["SolverSettings"]
 
-_INT_RANGES = {"n_cells": (20, 4000), "n_average_windows": (1, 20)}
+_INT_RANGES = {
+    "n_cells": (20, 4000),
+    "n_average_windows": (1, 20),
+    "ion_scheme_order": (1, 2),
+    "warmup_coarsening": (1, 8),
+}
 _FLOAT_RANGES = {
     "cfl": (0.05, 0.95),
     "window_s": (1e-6, 1e-2),
     "min_time_s": (0.0, 0.1),
+    "warmup_time_s": (0.0, 0.1),
     "max_time_s": (1e-6, 1.0),
     "tolerance": (1e-5, 0.5),
     "mass_tolerance": (1e-5, 0.5),
@@ -36,12 +42,13 @@ class SolverSettings:
     ----------
     n_cells : int, default=160
         Number of uniform axial cells between anode and cathode plane.
-    cfl : float, default=0.8
+    cfl : float, default=0.6
         Courant number on the ion fast speed |u_i| + c_s.
-    window_s : float, default=1.0e-4
+    window_s : float, default=7.5e-5
         Length of one averaging window [s].
-    min_time_s : float, default=2.0e-4
-        Transient always discarded before windows are compared [s].
+    min_time_s : float, default=2.5e-5
+        Transient discarded on the solver grid (after the warm-up) before
+        windows are compared [s].
     max_time_s : float, default=1.6e-3
         Simulated-time limit [s]; reaching it gives status "not_converged".
     n_average_windows : int, default=2
@@ -70,12 +77,22 @@ class SolverSettings:
     max_floor_fraction : float, default=0.02
         Largest fraction of cell-steps that may hit a floor or ceiling in the
         averaging window before the result is marked "not_converged".
+    ion_scheme_order : {1, 2}, default=2
+        Spatial order of the ion fluxes: 1 = first-order Rusanov, 2 = MUSCL
+        reconstruction of density and velocity with minmod slopes.
+    warmup_time_s : float, default=2.0e-4
+        Start-up transient marched first on a grid ``warmup_coarsening``
+        times coarser (cheaper), then interpolated onto the solver grid; the
+        convergence test runs on the solver grid only. 0 disables it; if the
+        coarse march fails the run starts from scratch on the solver grid.
+    warmup_coarsening : int, default=2
+        Coarsening factor of the warm-up grid (1 disables the warm-up).
     """
 
     n_cells: int = 160
-    cfl: float = 0.8
-    window_s: float = 1.0e-4
-    min_time_s: float = 2.0e-4
+    cfl: float = 0.6
+    window_s: float = 7.5e-5
+    min_time_s: float = 2.5e-5
     max_time_s: float = 1.6e-3
     n_average_windows: int = 2
     tolerance: float = 0.01
@@ -88,6 +105,9 @@ class SolverSettings:
     wall_secondary_yield: float = 0.5
     wall_loss_scale: float = 1.0
     max_floor_fraction: float = 0.02
+    ion_scheme_order: int = 2
+    warmup_time_s: float = 2.0e-4
+    warmup_coarsening: int = 2
 
     def __post_init__(self) -> None:
         for key, (lo, hi) in _INT_RANGES.items():
