@@ -158,7 +158,7 @@ def _dominant_frequency(samples: np.ndarray, dt: float) -> tuple[float, float]:
         return 0.0, 0.0
     x = samples - samples.mean()
     std = float(x.std())
-    if std <= 2e-3 * abs(float(samples.mean())):
+    if std <= _OSCILLATION_THRESHOLD * abs(float(samples.mean())):
         return std, 0.0
     n_fft = 8 * int(2 ** math.ceil(math.log2(x.size)))
     spec = np.abs(np.fft.rfft(x * np.hanning(x.size), n=n_fft))

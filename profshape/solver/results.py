@@ -43,7 +43,7 @@ GLOBAL_DESCRIPTIONS: dict[str, str] = {
     "peak_electron_temperature_eV": "maximum of the time-averaged electron temperature [eV]",
     "oscillation_amplitude_A": "standard deviation of the discharge current [A]",
     "oscillation_relative_amplitude": "oscillation_amplitude_A / discharge_current_A [-]",
-    "oscillation_frequency_Hz": "dominant frequency of the current (0 if amplitude < 0.2 %) [Hz]",
+    "oscillation_frequency_Hz": "dominant frequency of the current (0 if relative amplitude < 1 %) [Hz]",
     "converged": "whether the convergence test passed",
     "status": '"ok", "not_converged" or "failed"',
     "reason": "why the run stopped",
@@ -54,6 +54,8 @@ GLOBAL_DESCRIPTIONS: dict[str, str] = {
     "averaging_time_s": "length of the averaging window [s]",
     "n_steps": "number of time steps",
     "n_cells": "number of cells",
+    "averaging_start_s": "simulated time at which the averaging window starts [s]",
+    "warm_start": "whether the start-up transient ran on the coarse warm-up grid",
     "wall_time_s": "wall-clock time of the solve [s]",
 }
 
