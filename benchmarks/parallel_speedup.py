@@ -1,0 +1,89 @@
+"""Wall-clock of a search with 1 worker (q = 1) against 2 workers (q = 2).
+
+The forward model is the built-in solver at the demo device's two operating
+points; the same budget is run both ways on a local process pool and the
+ratio printed. Goal: >= 1.7x when the forward model dominates.
+
+Usage::
+
+    python benchmarks/parallel_speedup.py [--budget 12] [--n-cells 160] [--quick]
+"""
+
+from __future__ import annotations
+
+import argparse
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import torch
+
+from profshape.data import DataSet, IonVelocityProfile, OperatingPointData
+from profshape.executors import local_executor
+from profshape.forward.builtin import BuiltinSolverModel
+from profshape.problem import CalibrationProblem
+from profshape.search import SearchSettings, run_search
+from profshape.shapes import get_family
+from profshape.solver import SolverSettings, demo_device, demo_operating_points
+
+TRUTH = np.array([-2.6, -1.0, 0.026, 0.004])
+
+
+def make_problem(n_cells: int) -> CalibrationProblem:
+    family = get_family("smooth_step", channel_length_m=0.024)
+    model = BuiltinSolverModel(demo_device(), SolverSettings(n_cells=n_cells))
+    rng = np.random.default_rng(0)
+    points = []
+    for point in demo_operating_points():
+        p = model(family.profile(TRUTH), point)
+        z = np.linspace(0.008, 0.055, 16)
+        sigma = np.full_like(z, 250.0)
+        v = np.interp(z, p.z_m, p.ion_velocity_m_s) + sigma * rng.normal(size=z.size)
+        points.append(OperatingPointData(point, IonVelocityProfile(z, v, sigma)))
+    return CalibrationProblem(family, DataSet(points), model)
+
+
+def timed(problem, q: int, workers: int, budget: int, folder: Path) -> tuple[float, int]:
+    settings = SearchSettings(budget=budget, batch_size=q, n_initial=4, seed=0, progress=False,
+                              num_restarts=4, raw_samples=128)
+    with local_executor(workers) as pool:
+        # warm the workers (imports, numba compilation) outside the timing
+        list(pool.map(_warm, range(workers)))
+        t0 = time.perf_counter()
+        res = run_search(problem, settings, folder / f"q{q}_w{workers}.parquet", executor=pool)
+        return time.perf_counter() - t0, res.n_trials
+
+
+def _warm(_: int) -> None:
+    from profshape.solver import solve
+
+    family = get_family("smooth_step", channel_length_m=0.024)
+    solve(demo_device(), demo_operating_points()[0], family.profile(TRUTH),
+          SolverSettings(n_cells=40))
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--budget", type=int, default=12)
+    ap.add_argument("--n-cells", type=int, default=160)
+    ap.add_argument("--quick", action="store_true", help="budget 8")
+    args = ap.parse_args()
+    torch.set_num_threads(1)
+    budget = 8 if args.quick else args.budget
+    problem = make_problem(args.n_cells)
+    t_run = time.perf_counter()
+    problem.evaluate(problem.from_unit(np.full(problem.dim, 0.5)))
+    t_run = time.perf_counter() - t_run
+    with tempfile.TemporaryDirectory() as tmp:
+        t1, n1 = timed(problem, 1, 1, budget, Path(tmp))
+        t2, n2 = timed(problem, 2, 2, budget, Path(tmp))
+    print(f"forward trial (2 operating points, serial): {t_run:.2f} s; budget {budget}")
+    print(f"{'setup':<22}{'trials':>8}{'wall [s]':>12}")
+    print(f"{'1 worker,  q = 1':<22}{n1:>8}{t1:>12.2f}")
+    print(f"{'2 workers, q = 2':<22}{n2:>8}{t2:>12.2f}")
+    print(f"speed-up: {t1 / t2:.2f}x (goal >= 1.7x)")
+
+
+if __name__ == "__main__":
+    main()
