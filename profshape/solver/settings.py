@@ -49,7 +49,7 @@ class SolverSettings:
     min_time_s : float, default=2.5e-5
         Transient discarded on the solver grid (after the warm-up) before
         windows are compared [s].
-    max_time_s : float, default=1.6e-3
+    max_time_s : float, default=1.2e-3
         Simulated-time limit [s]; reaching it gives status "not_converged".
     n_average_windows : int, default=2
         Number of consecutive windows averaged for the result; they must
@@ -93,7 +93,7 @@ class SolverSettings:
     cfl: float = 0.6
     window_s: float = 7.5e-5
     min_time_s: float = 2.5e-5
-    max_time_s: float = 1.6e-3
+    max_time_s: float = 1.2e-3
     n_average_windows: int = 2
     tolerance: float = 0.01
     mass_tolerance: float = 0.01

@@ -1,0 +1,145 @@
+"""Physics of the built-in solver on the demo case: bounds, conservation, trends."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from profshape.operating_point import OperatingPoint
+from profshape.propellants import get_propellant
+from profshape.shapes import get_family
+from profshape.solver import CELL_COLUMNS, SolverSettings, demo_device, grid, solve
+
+
+def test_demo_solve_converges_and_is_finite(demo_result):
+    r = demo_result
+    assert r.status == "ok", r.reason
+    assert r.converged and r.globals["converged"] is True
+    assert list(r.cells.columns) == list(CELL_COLUMNS)
+    assert np.all(np.isfinite(r.cells.to_numpy()))
+    for key, value in r.globals.items():
+        if isinstance(value, float):
+            assert np.isfinite(value), key
+    assert r.z_m == pytest.approx(grid(demo_device(), SolverSettings()))
+
+
+def test_potential_boundary_values(demo_result, demo_case):
+    # anode at the discharge voltage, cathode plane at 0 (half a cell away)
+    phi = demo_result.cells["potential_V"].to_numpy()
+    v_d = demo_case[1].discharge_voltage_V
+    assert abs(phi[0] - v_d) < 0.05 * v_d
+    assert abs(phi[-1]) < 0.01 * v_d
+
+
+def test_ion_velocity_below_energy_bound(demo_result, demo_case):
+    # energy conservation: no ion faster than sqrt(2 e V_d / M) (REFERENCES: 20,998 m/s
+    # for Xe at 300 V); 1 % numerical tolerance
+    v_max = get_propellant("xenon").max_ion_velocity(demo_case[1].discharge_voltage_V)
+    assert v_max == pytest.approx(20998, rel=2e-4)
+    assert np.max(demo_result.ion_velocity_m_s) <= 1.01 * v_max
+
+
+def test_mass_conservation_at_outlet(demo_result, demo_case):
+    # ion + neutral mass flow through the cathode plane within 1 % of the anode flow
+    g = demo_result.globals
+    assert abs(g["mass_balance_error"]) <= 0.01
+    mdot = demo_case[1].anode_mass_flow_kg_s
+    device = demo_case[0]
+    prop = get_propellant("xenon")
+    cells = demo_result.cells
+    u_n = np.sqrt(8 * 1.380649e-23 * device.anode_temperature_K / (np.pi * prop.mass_kg))
+    out = prop.mass_kg * device.channel_area_m2 * (
+        cells["ion_current_A"].iloc[-1] / 1.602176634e-19
+        / device.channel_area_m2
+        + cells["neutral_density_m3"].iloc[-1] * u_n
+    )
+    assert out == pytest.approx(mdot, rel=0.02)  # cell-centre values, half a cell upstream
+
+
+def test_current_constant_along_z(demo_result):
+    # electron current from Ohm's law + ion current = discharge current everywhere (1 %)
+    c = demo_result.cells
+    total = c["ion_current_A"] + c["electron_current_A"]
+    i_d = demo_result.globals["discharge_current_A"]
+    assert np.max(np.abs(total - i_d)) <= 0.01 * i_d
+    assert demo_result.globals["current_balance_error"] <= 0.01
+
+
+def test_global_consistency(demo_result, demo_case):
+    g = demo_result.globals
+    point = demo_case[1]
+    # Isp = T / (mdot g0), g0 = 9.80665 m/s^2 (CGPM 1901)
+    assert g["specific_impulse_s"] == pytest.approx(
+        g["thrust_N"] / (point.anode_mass_flow_kg_s * 9.80665), rel=1e-9
+    )
+    # anode efficiency T^2 / (2 mdot P) (definition)
+    assert g["anode_efficiency"] == pytest.approx(
+        g["thrust_N"] ** 2 / (2 * point.anode_mass_flow_kg_s * g["discharge_power_W"]), rel=1e-9
+    )
+    assert 0 < g["anode_efficiency"] < 1
+    assert g["current_utilization"] == pytest.approx(
+        g["beam_current_A"] / g["discharge_current_A"], rel=1e-9
+    )
+
+
+def test_typical_xenon_case_utilizations(demo_result):
+    # common practice, no source: at 300 V with a typical profile, voltage utilization
+    # 0.7-0.95, mass utilization 0.6-1.0 (brief), peak T_e of order V_d / 10
+    g = demo_result.globals
+    assert 0.70 <= g["voltage_utilization"] <= 0.95
+    assert 0.60 <= g["mass_utilization"] <= 1.0 + 1e-3
+    assert 0.05 <= g["peak_electron_temperature_eV"] / 300.0 <= 0.2
+    # discharge current of a few amperes at 4.5 mg/s xenon (common practice)
+    assert 3.0 < g["discharge_current_A"] < 9.0
+
+
+def _half_potential_position(result, v_d):
+    c = result.cells
+    return float(np.interp(-0.5 * v_d, -c["potential_V"].to_numpy(), c["z_m"].to_numpy()))
+
+
+def test_more_plume_transport_raises_current_and_moves_acceleration_upstream(demo_case):
+    # common practice, no source: more anomalous transport in the near plume raises
+    # the discharge current and pulls the acceleration region towards the anode.
+    device, point, _ = demo_case
+    fam = get_family("smooth_step", channel_length_m=device.channel_length_m)
+    low = solve(device, point, fam.profile([-2.5, -1.0, 0.024, 0.002]))
+    high = solve(device, point, fam.profile([-2.5, -0.4, 0.024, 0.002]))
+    assert low.status == "ok" and high.status == "ok", (low.reason, high.reason)
+    assert high.globals["discharge_current_A"] > 1.02 * low.globals["discharge_current_A"]
+    z_low = _half_potential_position(low, point.discharge_voltage_V)
+    z_high = _half_potential_position(high, point.discharge_voltage_V)
+    assert z_high < z_low - 2e-4
+
+
+def test_grid_convergence(demo_case, demo_result):
+    # exit ion velocity and discharge current change by < 2 % from N to 2N cells
+    device, point, profile = demo_case
+    n = SolverSettings().n_cells
+    fine = solve(device, point, profile, SolverSettings(n_cells=2 * n))
+    assert fine.status == "ok", fine.reason
+    for key in ("exit_ion_velocity_m_s", "discharge_current_A"):
+        a, b = demo_result.globals[key], fine.globals[key]
+        assert abs(b - a) / abs(b) < 0.02, (key, a, b)
+
+
+def test_krypton_case_converges_with_higher_exit_velocity():
+    device = demo_device()
+    point = OperatingPoint("Kr300", 300.0, 3.0e-6, "krypton")
+    fam = get_family("smooth_step", channel_length_m=device.channel_length_m)
+    r = solve(device, point, fam.profile([-2.5, -1.0, 0.024, 0.002]))
+    assert r.status in ("ok", "not_converged"), r.reason
+    v_max = get_propellant("krypton").max_ion_velocity(300.0)  # 26,284 m/s (REFERENCES)
+    assert np.max(r.ion_velocity_m_s) <= 1.01 * v_max
+    assert r.globals["exit_ion_velocity_m_s"] > 20998  # above xenon's bound at 300 V
+
+
+def test_oscillation_outputs_present(demo_result):
+    g = demo_result.globals
+    assert g["oscillation_amplitude_A"] >= 0
+    assert g["oscillation_frequency_Hz"] >= 0
+    h = demo_result.history
+    assert h["time_s"].shape == h["discharge_current_A"].shape
+    assert np.mean(h["discharge_current_A"]) == pytest.approx(
+        g["discharge_current_A"], rel=0.02
+    )
