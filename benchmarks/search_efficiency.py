@@ -63,7 +63,7 @@ class Counter:
         return val if np.isfinite(val) else 1e6
 
     def runs_to(self, target):
-        best = np.minimum.accumulate(np.array(self.history + [np.inf]))
+        best = np.minimum.accumulate(np.array([*self.history, np.inf]))
         hit = np.flatnonzero(best <= target)
         return int(hit[0]) + 1 if hit.size else self.budget + 1
 
