@@ -51,7 +51,7 @@ def test_tabulated_field_must_span_the_grid():
     base = demo_device()
     short = TabulatedField([0.0, 0.03], [0.01, 0.02])
     dev = Device(0.024, 0.032, 0.044, 0.06, short)
-    with pytest.raises(InputDataError, match="magnetic_field.z_m"):
+    with pytest.raises(InputDataError, match=r"magnetic_field\.z_m"):
         solve(dev, demo_operating_points()[0], _flat(), FAST)
     with pytest.raises(InputDataError, match="B_T"):
         TabulatedField([0.0, 0.03, 0.06], [0.01, 0.02])
@@ -132,7 +132,7 @@ def test_mapping_helpers_round_trip_and_name_unknown_keys():
         device_from_mapping({"chanel_length_m": 0.02})
     with pytest.raises(ConfigError, match="peak_T"):
         device_from_mapping({"magnetic_field": {"peak_z_m": 0.02}})
-    with pytest.raises(ConfigError, match="magnetic_field.B_T"):
+    with pytest.raises(ConfigError, match=r"magnetic_field\.B_T"):
         device_from_mapping({"magnetic_field": {"z_m": [0, 0.06], "B_T": ["a", 1]}})
     with pytest.raises(ConfigError, match="channel_length_m"):
         device_from_mapping({"channel_length_m": "long"})
