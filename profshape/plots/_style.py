@@ -1,0 +1,83 @@
+"""Shared look of profshape figures and the save helper (private).
+
+The scheme: a near-black ink for data, a deep blue-green for the best fit,
+band fills taken from the light end of the cividis map at two lightness
+steps, and misfit shading on cividis (sequential and readable in grey scale).
+Lines differ in dash pattern as well as colour, markers in shape.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+from pathlib import Path
+from typing import Any
+
+from ..exceptions import InputDataError
+
+__all__: list[str] = []
+
+INK = "#1d1f24"
+BEST = "#0f4c5c"
+MEDIAN = "#5b6770"
+BAND_FILLS = ("#c9c6a6", "#e9e6cf")  # inner (narrow level), outer (wide level)
+FAIL = "#a23b2a"
+POSTERIOR = "#2b2d42"
+CMAP = "cividis"
+CMAP_REVERSED = "cividis_r"  # low misfit bright, high misfit dark
+MARKERS = ("o", "s", "^", "D", "v", "P", "X", "*")
+DASHES = ("-", "--", "-.", ":")
+RC = {
+    "font.size": 9.0,
+    "axes.titlesize": 9.5,
+    "axes.labelsize": 9.0,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "axes.grid": True,
+    "grid.color": "#dcdcdc",
+    "grid.linewidth": 0.5,
+    "legend.frameon": False,
+    "legend.fontsize": 8.0,
+    "savefig.dpi": 150,
+}
+
+
+def new_figure(width_in: float, height_in: float, layout: str | None = "constrained") -> Any:
+    """A matplotlib Figure not attached to pyplot (headless; no global state)."""
+    from matplotlib.figure import Figure
+
+    return Figure(figsize=(width_in, height_in), layout=layout)
+
+
+def style() -> Any:
+    """Context manager applying :data:`RC`."""
+    import matplotlib
+
+    return matplotlib.rc_context(RC)
+
+
+def save(fig: Any, paths: str | Path | Iterable[str | Path] | None) -> None:
+    """Save ``fig`` to each path (format from the suffix, e.g. ``.png``, ``.svg``)."""
+    if paths is None:
+        return
+    if isinstance(paths, str | Path):
+        paths = [paths]
+    for p in paths:
+        path = Path(p)
+        if not path.suffix:
+            raise InputDataError(
+                f"plot path {str(path)!r} has no suffix; end it in .png, .svg or .pdf."
+            )
+        path.parent.mkdir(parents=True, exist_ok=True)
+        with style():
+            fig.savefig(path)
+
+
+def band_levels(columns: Iterable[str]) -> list[float]:
+    """Levels present as ``lower_<level>`` columns, widest first."""
+    levels = sorted({float(c.split("_", 1)[1]) for c in columns if c.startswith("lower_")},
+                    reverse=True)
+    return levels
+
+
+def level_label(level: float) -> str:
+    return f"{100 * level:g} % band"
