@@ -48,6 +48,8 @@ GLOBAL_DESCRIPTIONS: dict[str, str] = {
     "status": '"ok", "not_converged" or "failed"',
     "reason": "why the run stopped",
     "mass_balance_error": "(outlet ion + neutral flow) / anode flow - 1 over the window [-]",
+    "statistical_uncertainty": "relative standard error of the averaged current / exit velocity "
+    "from the cycle-to-cycle scatter (0 for a non-oscillating discharge) [-]",
     "current_balance_error": "max over z of |I_ion + I_electron - I_d| / I_d [-]",
     "floor_fraction": "fraction of cell-steps that hit a floor or ceiling [-]",
     "simulated_time_s": "simulated time [s]",
