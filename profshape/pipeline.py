@@ -45,6 +45,8 @@ __all__ = [
     "resume",
 ]
 
+_REQUIRED_DEVICE_KEYS = ("channel_length_m", "inner_radius_m", "outer_radius_m", "domain_length_m",
+                         "magnetic_field")
 RUN_FILE = "run.json"
 CONFIG_COPY = "calibration.toml"
 TRIALS_FILE = "trials.parquet"
@@ -132,7 +134,7 @@ def _prediction_points(cfg: CalibrationConfig) -> list[OperatingPoint]:
 
 def _device(cfg: CalibrationConfig) -> Any:
     from .solver import demo_device
-    from .solver.command import device_from_mapping
+    from .solver.config import device_from_mapping
 
     section = cfg.section("device")
     if not section:
@@ -141,6 +143,10 @@ def _device(cfg: CalibrationConfig) -> Any:
         return None
     if section.get("preset") == "demo" and len(section) == 1:
         return demo_device()
+    missing = [k for k in _REQUIRED_DEVICE_KEYS if k not in section]
+    if missing:
+        raise cfg.error(f"device.{missing[0]}", f"is required (the [device] table needs "
+                        f"{list(_REQUIRED_DEVICE_KEYS)}; or write preset = \"demo\" alone).")
     try:
         return device_from_mapping(section, where="device")
     except InputDataError as exc:
@@ -190,7 +196,7 @@ def _forward_model(cfg: CalibrationConfig, device: Any, out_dir: Path) -> Forwar
     fm = cfg.section("forward_model")
     if fm["kind"] == "builtin":
         from .forward.builtin import BuiltinSolverModel
-        from .solver.command import settings_from_mapping
+        from .solver.config import settings_from_mapping
 
         try:
             settings = settings_from_mapping(fm["solver"], where="forward_model.solver")
