@@ -187,13 +187,6 @@ def march(
                 if abs(ui[i]) + cs[i] >= amax:
                     k_bad = i
             return VELOCITY_RUNAWAY, steps, t, floor_hits, n_samp, k_bad
-        dt = cfl * dz / amax
-        if dt > dt_max:
-            dt = dt_max
-        if t + dt > t_end:
-            dt = t_end - t
-        if dt <= 1e-13:
-            return TIME_STEP_COLLAPSE, steps, t, floor_hits, n_samp, 0
 
         # ---- 2. Ohm's law and the voltage constraint --------------------
         dp[0] = (p[1] - p[0]) / dz
@@ -215,6 +208,23 @@ def march(
         phi[0] = v_d
         for i in range(n):
             phi[i + 1] = phi[i] - ef[i] * dz
+        # time step: Courant number on |u_i| + c_s, and on the ion acceleration
+        # (an ion starting at rest must not cross more than a cell per step)
+        emax = 0.0
+        for i in range(n):
+            if abs(ef[i]) > emax:
+                emax = abs(ef[i])
+        dt = cfl * dz / amax
+        if emax > 0.0:
+            dt_acc = cfl * math.sqrt(dz / (e_over_m * emax))
+            if dt_acc < dt:
+                dt = dt_acc
+        if dt > dt_max:
+            dt = dt_max
+        if t + dt > t_end:
+            dt = t_end - t
+        if dt <= 1e-13:
+            return TIME_STEP_COLLAPSE, steps, t, floor_hits, n_samp, 0
 
         # ---- 3. ion face fluxes (Rusanov) --------------------------------
         ub = ui[0]

@@ -54,9 +54,17 @@ Boundary conditions for T_e: at the cathode plane T_e equals
 last cell centre); at the anode the conductive heat flux is zero and
 electrons leave with their enthalpy flux 5/2 n_e u_e T_e.
 
-Numerics: first-order finite volumes; Rusanov fluxes for ions (time step from
-a Courant number on |u_i| + c_s), upwind neutrals with an implicit ionization
-sink, backward-Euler electron energy (one tridiagonal solve per step). The
+Numerics: finite volumes on a uniform grid. Ions: Rusanov (local
+Lax-Friedrichs) fluxes with MUSCL reconstruction of density and velocity
+(minmod slopes; ``ion_scheme_order=1`` gives first order); the time step is
+the smaller of a Courant number on |u_i| + c_s and the same number on the
+ion acceleration time sqrt(dz M / (e |E|)). Neutrals: upwind advection with
+an implicit ionization sink. Electron energy: backward Euler in T_e with
+first-order upwind convection (one tridiagonal solve per step). The Coulomb
+logarithm is refreshed every 8 steps. A run whose ion speed exceeds twice the
+energy bound plus 20 km/s is stopped as a numerical instability ("failed").
+The start-up transient is marched on a twice coarser grid
+(``warmup_time_s``), then interpolated onto the solver grid. The
 state is marched to a statistically steady state: after ``min_time_s`` the
 run is split into windows of ``window_s``; it stops when the last
 ``n_average_windows`` windows agree in discharge current and exit ion

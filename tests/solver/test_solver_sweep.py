@@ -35,10 +35,16 @@ def _families():
         "scaled_reference": get_family(
             "scaled_reference", reference=default_profile(device).function
         ),
+        # absolute anomalous frequency [1/s] instead of a Bohm-like coefficient
+        "smooth_step_frequency": get_family(
+            "smooth_step", channel_length_m=length, kind="frequency"
+        ),
     }
 
 
-@pytest.mark.parametrize("name", ["smooth_step", "log_spline", "log_well", "scaled_reference"])
+@pytest.mark.parametrize(
+    "name", ["smooth_step", "log_spline", "log_well", "scaled_reference", "smooth_step_frequency"]
+)
 def test_random_shapes_never_raise_or_return_nan(name):
     family = _families()[name]
     device = demo_device()
