@@ -83,7 +83,7 @@ def nu_ei_nrl(n_m3, te_eV):
     return 2.91e-12 * n_m3 * coulomb_log_nrl(n_m3, te_eV) / (te_eV * math.sqrt(te_eV))
 
 
-@njit(cache=True, fastmath=_FM)
+@njit(cache=True, fastmath=_FM, nogil=True)
 def march(
     nn, ni, gi, te,  # state (modified in place) [m^-3, m^-3, m^-2 s^-1, eV]
     dz, area, ion_mass, u_n, gamma_in, v_d, te_cath,
