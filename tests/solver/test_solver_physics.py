@@ -65,6 +65,26 @@ def test_current_constant_along_z(demo_result):
     assert demo_result.globals["current_balance_error"] <= 0.01
 
 
+def test_ohms_law_from_time_averaged_fields(demo_result, demo_case):
+    # Independent check from the output columns: electron flux from the generalized Ohm's
+    # law -mu (n E + d(n T_e)/dz), mu = (e / m nu) / (1 + Omega^2) (Goebel and Katz 2008,
+    # ch. 3), plus the ion current must equal the discharge current (1 %, interior cells).
+    from scipy import constants
+
+    c = demo_result.cells
+    n = c["plasma_density_m3"].to_numpy()
+    z = c["z_m"].to_numpy()
+    nu = c["collision_frequency_per_s"].to_numpy()
+    omega = constants.e * c["magnetic_field_T"].to_numpy() / constants.m_e
+    mu = constants.e / (constants.m_e * nu) / (1 + (omega / nu) ** 2)
+    grad_p = np.gradient(n * c["electron_temperature_eV"].to_numpy(), z)
+    flux_e = -mu * (n * c["electric_field_V_m"].to_numpy() + grad_p)
+    i_e = -constants.e * demo_case[0].channel_area_m2 * flux_e
+    total = i_e + c["ion_current_A"].to_numpy()
+    i_d = demo_result.globals["discharge_current_A"]
+    assert np.max(np.abs(total[1:-1] / i_d - 1)) < 0.01
+
+
 def test_global_consistency(demo_result, demo_case):
     g = demo_result.globals
     point = demo_case[1]
