@@ -94,6 +94,7 @@ def march(
     acc,  # (n_chunks, n_fields, N) time-weighted sums per chunk, modified in place
     acc_g,  # (n_chunks, n_global) time-weighted sums of global quantities per chunk
     samples,  # (n_samples,) discharge current samples [A] from t_start on
+    hit_kinds,  # (3,) int64: density-floor, T_e-floor and T_e-ceiling hits, incremented
 ):
     """Advance the state from t_start to t_end; accumulate time integrals.
 
@@ -152,6 +153,7 @@ def march(
                 ni[i] = n_floor
                 gi[i] = 0.0
                 floor_hits += 1
+                hit_kinds[0] += 1
             ne[i] = ni[i]
             inv_ne[i] = 1.0 / ni[i]
             ui[i] = gi[i] * inv_ne[i]
@@ -352,9 +354,11 @@ def march(
             if tt < te_floor:
                 te[i] = te_floor
                 floor_hits += 1
+                hit_kinds[1] += 1
             elif tt > te_ceiling:
                 te[i] = te_ceiling
                 floor_hits += 1
+                hit_kinds[2] += 1
             nn[i] = nn_new[i]
             ni[i] = ne_new[i]
             if not math.isfinite(ni[i]):
@@ -362,6 +366,7 @@ def march(
             if not math.isfinite(gi[i]):
                 return NONFINITE_ION_FLUX, steps, t, floor_hits, n_samp, i
         floor_hits += nnew_floor
+        hit_kinds[0] += nnew_floor
 
         # ---- 7. time integrals (state at the start of the step, weight dt) --
         c = int((t - t_start) / chunk_dt)

@@ -277,6 +277,7 @@ class _Case:
         ratio = (1.0 - sigma) * math.sqrt(self.mass / (2.0 * math.pi * constants.m_e))
         self.wall_loss_per_te = 2.0 + (1.0 - sigma) * max(math.log(ratio), 0.0)
         self.rates = rate_set(prop.name)
+        self.hit_kinds = np.zeros(3, dtype=np.int64)
 
     def initial_state(self):
         return _initial_state(self.z, self.device, self.gamma_in, self.u_n, self.v_max)
@@ -292,7 +293,7 @@ class _Case:
             sets.density_floor_m3, sets.electron_temperature_floor_eV,
             sets.electron_temperature_ceiling_eV, sets.cfl, sets.max_time_step_s,
             sets.ion_scheme_order == 2, 2.0 * self.v_max + 2e4,
-            t, t_end, sets.sample_interval_s, chunk_dt, acc, acc_g, samples,
+            t, t_end, sets.sample_interval_s, chunk_dt, acc, acc_g, samples, self.hit_kinds,
         )  # fmt: skip
 
 
@@ -352,6 +353,8 @@ def _solve(device, point, profile, settings, prop, z, b, t0) -> SolverResult:
                 {"simulated_time_s": t_new, "n_steps": steps_total},
             )
         plan.hits[c0:c1] = hits / (c1 - c0)  # spread evenly over the call's chunks
+        plan.kinds[c0:c1] = (case.hit_kinds - plan.kinds_total) / (c1 - c0)
+        plan.kinds_total = case.hit_kinds.copy()
         plan.steps[c0:c1] = steps / (c1 - c0)
         t = t_end
         c0 = c1
@@ -385,6 +388,8 @@ class _Plan:
         self.min_chunk = round(settings.min_time_s / self.chunk_dt)
         self.n_samples = int(settings.max_time_s / settings.sample_interval_s) + 8
         self.hits = np.zeros(self.n_chunks)
+        self.kinds = np.zeros((self.n_chunks, 3))
+        self.kinds_total = np.zeros(3, dtype=np.int64)
         self.steps = np.zeros(self.n_chunks)
 
 
@@ -587,9 +592,13 @@ def _assemble(acc_all, g_all, samples_all, span, plan, converged, reason, device
         return _failed(f"non-finite averages in {bad_glob + bad_cols}", z, t0)
     if converged and floor_fraction > settings.max_floor_fraction:
         status = "not_converged"
+        kinds = plan.kinds[a:bnd].sum(axis=0)
+        names = ("the plasma-density floor", "the electron-temperature floor",
+                 "the electron-temperature ceiling")
+        worst_kind = names[int(np.argmax(kinds))]
         reason = (
-            f"floors/ceilings hit in {floor_fraction:.2%} of cell-steps "
-            f"(limit {settings.max_floor_fraction:.2%}); {reason}"
+            f"floors/ceilings hit in {floor_fraction:.2%} of cell-steps, mostly "
+            f"{worst_kind} (limit {settings.max_floor_fraction:.2%}); {reason}"
         )
     glob["status"] = status
     glob["converged"] = status == "ok"
