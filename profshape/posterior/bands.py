@@ -8,6 +8,7 @@ and listed in :attr:`PosteriorBands.draws`, never averaged in.
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
@@ -165,6 +166,19 @@ def _default_z(problem: Any) -> np.ndarray:
     return np.linspace(min(lows), max(highs), 200)
 
 
+def _device_field(problem: Any) -> Callable[[np.ndarray, Any], np.ndarray] | None:
+    """``B(z, point)`` [T] from a forward model that carries a device with a field map."""
+    device = getattr(problem.forward_model, "device", None)
+    field_map = getattr(device, "magnetic_field", None)
+    if not callable(field_map):
+        return None
+    return functools.partial(_scaled_field, field_map)
+
+
+def _scaled_field(field_map: Any, z_m: np.ndarray, point: Any) -> np.ndarray:
+    return np.asarray(field_map(z_m), dtype=float) * float(point.magnetic_field_scale)
+
+
 def _profile_frames(
     problem: Any, coeffs: np.ndarray, map_c: np.ndarray, z: np.ndarray, levels: tuple[float, ...],
     magnetic_field_T: Callable[[np.ndarray, Any], np.ndarray] | None,
@@ -289,8 +303,10 @@ def posterior_bands(
     seed : int or None, default=0
     magnetic_field_T : callable, optional
         ``magnetic_field_T(z_m, point) -> B [T]`` to convert a Bohm-type
-        profile into a frequency [1/s]; without it a Bohm-type profile band
-        is of the coefficient [-].
+        profile into a frequency [1/s]. By default it is taken from the forward
+        model's ``device.magnetic_field`` (times the point's field scale) when
+        there is one, as with the built-in solver; otherwise a Bohm-type
+        profile band is of the coefficient [-].
 
     Returns
     -------
@@ -305,6 +321,8 @@ def posterior_bands(
             f"the problem's {list(problem.names)}; use the problem the posterior was sampled on."
         )
     z = _default_z(problem) if z_m is None else np.asarray(z_m, dtype=float).reshape(-1)
+    if magnetic_field_T is None and problem.family.kind == "bohm":
+        magnetic_field_T = _device_field(problem)
     rng = np.random.default_rng(seed)
     map_c = posterior.map_vector
     prof_c = posterior.draw(min(int(n_profile_draws), len(posterior.samples)),

@@ -157,3 +157,47 @@ def test_log10_profile_helper_is_legendre():
     # numpy's Legendre basis: P0 = 1, P1 = x (Abramowitz and Stegun 22.4.6 table)
     z = np.array([0.0, 0.025, 0.05])
     np.testing.assert_allclose(log10_profile(np.array([1.0, 2.0]), z)[0], [-1.0, 1.0, 3.0])
+
+
+def test_executor_gives_the_same_bands(linear_case, linear_posterior):
+    # Draws run as one task per draw on an executor (concurrent.futures from the standard
+    # library as the reference) give exactly the serial result.
+    from concurrent.futures import ThreadPoolExecutor
+
+    problem, _ = linear_case
+    serial = posterior_bands(problem, linear_posterior, n_draws=6, seed=9)
+    with ThreadPoolExecutor(max_workers=2) as pool:
+        parallel = posterior_bands(problem, linear_posterior, n_draws=6, seed=9, executor=pool)
+        table = predict_scalars(problem, linear_posterior, n_draws=4, executor=pool, seed=1)
+    np.testing.assert_allclose(parallel.ion_velocity["median"], serial.ion_velocity["median"])
+    np.testing.assert_allclose(parallel.scalars["median"], serial.scalars["median"])
+    assert (table["n_ok"] == 4).all()
+
+
+def test_bohm_profile_band_uses_device_field(linear_case, linear_posterior):
+    # A Bohm-type family is converted with omega_ce = e B / m_e (NRL Plasma Formulary;
+    # scipy.constants CODATA) from the forward model's device field map.
+    from scipy import constants
+
+    from profshape.shapes import CustomFamily
+
+    from ._linear import BOUNDS, _profile_values
+
+    class _Device:
+        @staticmethod
+        def magnetic_field(z_m):
+            return 0.01 + 0.2 * np.asarray(z_m)
+
+    class _ModelWithDevice(LinearVelocityModel):
+        device = _Device()
+
+    problem, _ = linear_case
+    bohm = CustomFamily(_profile_values, {"c0": BOUNDS[0], "c1": BOUNDS[1]}, kind="bohm",
+                        vectorized=True)
+    bohm_problem = CalibrationProblem(bohm, problem.dataset, _ModelWithDevice())
+    z = np.array([0.01, 0.03])
+    result = posterior_bands(bohm_problem, linear_posterior, z_m=z, n_draws=0)
+    assert set(result.profile["quantity"]) == {"frequency_hz"}
+    coeff = 10.0 ** log10_profile(linear_posterior.map_vector, z)[0]
+    omega = constants.e * (0.01 + 0.2 * z) / constants.m_e
+    np.testing.assert_allclose(result.profile["map"], coeff * omega, rtol=1e-12)
