@@ -8,6 +8,8 @@ from __future__ import annotations
 
 import multiprocessing
 import os
+import threading
+import time
 from concurrent.futures import Executor, Future, ProcessPoolExecutor
 from typing import Any
 
@@ -30,11 +32,26 @@ def local_executor(max_workers: int | None = None) -> ProcessPoolExecutor:
     has already started torch's or OpenMP's threads can deadlock. The forward
     model and shape family must therefore be picklable (module-level
     functions, not lambdas).
+
+    Each worker exits when the process that made the pool dies, even by
+    SIGKILL (an idle pool worker otherwise waits for work forever).
     """
     n = max_workers or os.cpu_count() or 1
     if n < 1:
         raise InputDataError(f"max_workers must be >= 1; got {max_workers!r}.")
-    return ProcessPoolExecutor(max_workers=n, mp_context=multiprocessing.get_context("spawn"))
+    return ProcessPoolExecutor(max_workers=n, mp_context=multiprocessing.get_context("spawn"),
+                               initializer=_exit_with_parent, initargs=(os.getpid(),))
+
+
+def _exit_with_parent(parent_pid: int) -> None:
+    """Worker initializer: end this worker as soon as ``parent_pid`` is gone."""
+
+    def watch() -> None:
+        while os.getppid() == parent_pid:
+            time.sleep(0.5)
+        os._exit(1)
+
+    threading.Thread(target=watch, name="profshape-parent-watch", daemon=True).start()
 
 
 def dask_executor(client: Any) -> Executor:
