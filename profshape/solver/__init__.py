@@ -7,6 +7,13 @@ sources and :mod:`profshape.solver.collisions` for the formulary helpers.
 
 from __future__ import annotations
 
+from .config import (
+    default_profile,
+    device_from_mapping,
+    point_from_mapping,
+    profile_from_mapping,
+    settings_from_mapping,
+)
 from .device import Device, demo_device, demo_operating_points
 from .magnetic import BellField, MagneticField, TabulatedField
 from .model import grid, solve
@@ -22,8 +29,13 @@ __all__ = [
     "SolverResult",
     "SolverSettings",
     "TabulatedField",
+    "default_profile",
     "demo_device",
     "demo_operating_points",
+    "device_from_mapping",
     "grid",
+    "point_from_mapping",
+    "profile_from_mapping",
+    "settings_from_mapping",
     "solve",
 ]
