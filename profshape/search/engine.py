@@ -8,8 +8,9 @@ executor and the trial log.
 
 from __future__ import annotations
 
+import contextlib
 import math
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -21,7 +22,12 @@ from .acquisition import make_acquisition, optimize_acquisition
 from .design import derived_seed, sobol_point, user_points_to_unit
 from .settings import SearchSettings
 from .stopping import StopRules, count_later
-from .surrogate import combined_model, fit_feasibility_model, fit_objective_model
+from .surrogate import (
+    combined_model,
+    fit_feasibility_model,
+    fit_objective_model,
+    hyperparameters,
+)
 
 __all__ = ["MIN_OK_FOR_MODEL", "Observation", "Proposal", "Search"]
 
@@ -29,6 +35,20 @@ __all__ = ["MIN_OK_FOR_MODEL", "Observation", "Proposal", "Search"]
 MIN_OK_FOR_MODEL = 2
 
 SOURCES = ("initial", "proposal", "user", "resumed")
+
+
+@contextlib.contextmanager
+def _torch_threads(n: int | None) -> Iterator[None]:
+    """Run torch with ``n`` intra-op threads inside the block (``None``: unchanged)."""
+    if n is None:
+        yield
+        return
+    before = torch.get_num_threads()
+    torch.set_num_threads(n)
+    try:
+        yield
+    finally:
+        torch.set_num_threads(before)
 
 
 @dataclass
@@ -135,6 +155,7 @@ class Search:
         self.objective_model_ = None
         self.feasibility_model_ = None
         self.acquisition_ = None
+        self._warm: dict[str, dict[str, list[float]]] = {}
 
     # ------------------------------------------------------------------ state
     @property
@@ -259,7 +280,14 @@ class Search:
         """Fit the objective (and, after a failure, the feasibility) GP to the data.
 
         Called by :meth:`ask`; call it yourself to inspect ``model_`` at any time.
+        Each fit starts from the hyperparameters of the previous one when they
+        fit the new data better than the default start (see
+        :mod:`profshape.search.surrogate`).
         """
+        with _torch_threads(self.settings.torch_threads):
+            self._fit()
+
+    def _fit(self) -> None:
         obs = self.observations
         ok = [o for o in obs if o.ok]
         if len(ok) < 1:
@@ -269,25 +297,31 @@ class Search:
         attempts = self.settings.max_fit_attempts
         with torch.random.fork_rng():
             torch.manual_seed(derived_seed(self.settings.seed, "fit", self._next_trial) % 2**63)
-            self.objective_model_ = fit_objective_model(u_ok, y_ok, max_attempts=attempts)
+            self.objective_model_ = fit_objective_model(
+                u_ok, y_ok, max_attempts=attempts, warm_start=self._warm.get("objective")
+            )
+            self._warm["objective"] = hyperparameters(self.objective_model_)
             if len(ok) < len(obs):
                 u_all = np.array([o.u for o in obs])
                 failed = np.array([not o.ok for o in obs])
                 self.feasibility_model_ = fit_feasibility_model(
-                    u_all, failed, max_attempts=attempts
+                    u_all, failed, max_attempts=attempts,
+                    warm_start=self._warm.get("feasibility"),
                 )
+                self._warm["feasibility"] = hyperparameters(self.feasibility_model_)
             else:
                 self.feasibility_model_ = None
         self.model_ = combined_model(self.objective_model_, self.feasibility_model_)
         self._train = (u_ok, y_ok)
 
     def _propose(self, q: int, pending_u: np.ndarray) -> np.ndarray:
-        self.fit()
-        u_ok, y_ok = self._train
-        seed = derived_seed(self.settings.seed, "proposal", self._next_trial)
-        with torch.random.fork_rng():
-            torch.manual_seed(seed)
-            return self._optimize(q, pending_u, u_ok, y_ok, seed)
+        with _torch_threads(self.settings.torch_threads):
+            self._fit()
+            u_ok, y_ok = self._train
+            seed = derived_seed(self.settings.seed, "proposal", self._next_trial)
+            with torch.random.fork_rng():
+                torch.manual_seed(seed)
+                return self._optimize(q, pending_u, u_ok, y_ok, seed)
 
     def _optimize(self, q: int, pending_u: np.ndarray, u_ok: np.ndarray, y_ok: np.ndarray,
                   seed: int) -> np.ndarray:
@@ -350,7 +384,8 @@ class Search:
 
     # --------------------------------------------------------------- resume
     def restore(self, finished: Sequence[Observation], in_flight: Sequence[Proposal],
-                state: dict[str, int]) -> None:
+                state: dict[str, int],
+                warm_start: dict[str, dict[str, list[float]]] | None = None) -> None:
         """Rebuild the search from a log (used by resume).
 
         Parameters
@@ -362,6 +397,10 @@ class Search:
             pending again and must be re-run and told.
         state : dict
             Counters ``next_trial``, ``next_batch``, ``n_sobol``, ``n_user``.
+        warm_start : dict, optional
+            Hyperparameters of the last fit before the interruption
+            (:meth:`warm_start`), so the resumed search proposes what the
+            uninterrupted one would have.
         """
         self._observations = {o.trial: o for o in finished}
         self._pending = {p.trial: p for p in in_flight}
@@ -369,6 +408,12 @@ class Search:
         self._next_batch = int(state["next_batch"])
         self._n_sobol = int(state["n_sobol"])
         self._n_user = int(state["n_user"])
+        self._warm = {k: {n: list(map(float, v)) for n, v in d.items()}
+                      for k, d in (warm_start or {}).items()}
+
+    def warm_start(self) -> dict[str, dict[str, list[float]]]:
+        """Raw GP hyperparameters of the last fit (JSON-ready), for :meth:`restore`."""
+        return {k: {n: list(v) for n, v in d.items()} for k, d in self._warm.items()}
 
     def state(self) -> dict[str, int]:
         """Counters needed by :meth:`restore`."""

@@ -193,6 +193,7 @@ def _sidecar(search: Search, settings: SearchSettings, problem: Any,
         "labels": list(problem.dataset.labels),
         "settings": settings.to_dict(),
         "state": search.state(),
+        "warm_start": search.warm_start(),
         "in_flight": [
             {"trial": p.trial, "batch": p.batch, "source": p.source, "u": p.u.tolist()}
             for p in search.pending
@@ -231,7 +232,7 @@ def _restore(search: Search, log: TrialLog, settings: SearchSettings, problem: A
         u = np.asarray(p["u"], dtype=float)
         in_flight.append(Proposal(int(p["trial"]), int(p["batch"]), str(p["source"]), u,
                                   search._coefficients(u)))
-    search.restore(finished, in_flight, side["state"])
+    search.restore(finished, in_flight, side["state"], side.get("warm_start"))
 
 
 def run_search(
