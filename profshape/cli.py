@@ -11,10 +11,10 @@ import argparse
 import re
 import sys
 from collections.abc import Sequence
-from importlib import resources
 from pathlib import Path
 
 from ._version import __version__
+from .demo import demo_data_folder
 from .exceptions import InputDataError
 
 __all__ = ["main"]
@@ -29,7 +29,7 @@ def _err(message: str) -> None:
 def demo_config_text(budget: int | None = None, seed: int | None = None,
                      workers: int | None = None) -> tuple[str, Path]:
     """The bundled demo's calibration file with overrides, and its folder."""
-    folder = Path(str(resources.files("profshape.demo_data")))
+    folder = demo_data_folder()
     text = (folder / "demo.toml").read_text(encoding="utf-8")
     for key, value in (("budget", budget), ("seed", seed), ("n_workers", workers)):
         if value is not None:
