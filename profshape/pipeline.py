@@ -36,6 +36,7 @@ from .likelihood import LikelihoodSettings
 from .operating_point import OperatingPoint
 from .problem import CalibrationProblem
 from .shapes import ShapeFamily, get_family
+from .trials import sidecar_path
 
 __all__ = [
     "Calibration",
@@ -311,7 +312,10 @@ def open_output_folder(cfg: CalibrationConfig, out_dir: str | Path, resume: bool
             info = json.loads(run_file.read_text(encoding="utf-8"))
         except (OSError, ValueError):
             raise InputDataError(f"{run_file} is unreadable; choose another output folder.") from None
-        if info.get("fingerprint") != fp:
+        # a start refused for bad input before any search began holds no result: reuse it
+        refused_start = not resume and not any(
+            p.exists() for p in (out / TRIALS_FILE, sidecar_path(out / TRIALS_FILE)))
+        if info.get("fingerprint") != fp and not refused_start:
             raise InputDataError(
                 f"output folder {out} holds another calibration (its {CONFIG_COPY} differs); "
                 "choose a new --out, or `profshape resume` that folder."
@@ -321,8 +325,9 @@ def open_output_folder(cfg: CalibrationConfig, out_dir: str | Path, resume: bool
                 f"output folder {out} already holds this calibration's trials; use "
                 f"`profshape resume {out}` to continue it, or choose a new --out."
             )
-        return out
-    if out.exists() and any(out.iterdir()):
+        if info.get("fingerprint") == fp:
+            return out
+    elif out.exists() and any(out.iterdir()):
         raise InputDataError(
             f"output folder {out} is not empty and holds no calibration; choose a new or empty --out."
         )
