@@ -267,3 +267,20 @@ def test_real_command_line(case, tmp_path, tally):
     assert len(lines) == 1 and lines[0].startswith("profshape: error: "), proc.stderr
     assert "Traceback" not in proc.stderr and fragment.lower() in lines[0].lower()
     tally.add("bad_inputs_refused")
+
+
+def test_a_refused_start_does_not_block_the_corrected_file(tmp_path, capsys, tally):
+    """After a refusal, the user fixes the file and runs again with the same --out."""
+    from profshape.config import load_config
+    from profshape.pipeline import open_output_folder
+
+    bad = _write_case(tmp_path, CASES[31][1](BASE))  # inverted bounds
+    out = tmp_path / "out"
+    _refused(capsys, ["calibrate", str(bad), "--out", str(out), "--quiet"], "inverted", tally)
+    good = _write_case(tmp_path, BASE)
+    assert open_output_folder(load_config(good), out) == out
+    assert (out / "calibration.toml").read_text() == good.read_text()
+    # once a search has started there, another calibration is refused again
+    (out / "trials.parquet.json").write_text("{}")
+    _refused(capsys, ["calibrate", str(bad), "--out", str(out), "--quiet"],
+             "holds another calibration", tally)
