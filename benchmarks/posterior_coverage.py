@@ -77,6 +77,8 @@ def main() -> None:
         _, cov = exact_posterior(problem)
         sd = np.sqrt(np.einsum("ij,jk,ik->i", basis, cov, basis))
         width_ratio.append((hi - lo) / (2 * q * sd))
+        print(f"  repeat {rep + 1}: covered so far {covered.tolist()}, {times[-1]:.1f} s",
+              flush=True)
     lo_b, hi_b = stats.binom.interval(0.95, args.repeats, args.level)
     print(f"method={args.method} repeats={args.repeats} level={args.level} "
           f"gp_draws={args.gp_draws}")

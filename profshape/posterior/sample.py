@@ -10,11 +10,13 @@ the trials. Two mechanisms keep the GP's error out of the answer:
    see :mod:`~profshape.posterior.surrogate`) and the chains are pooled. The
    pooled sample targets the posterior averaged over the surrogate's
    uncertainty, so where the GP is unsure the sample spreads accordingly.
-2. *Refinement where the mass sits.* Each of ``n_refine_rounds`` rounds
-   runs ``n_refine_draws`` posterior draws through the real forward model,
-   adds them to the GP's training set, refits and samples again: the
+2. *Refinement where the mass sits.* Each of up to ``n_refine_rounds``
+   rounds runs ``n_refine_draws`` posterior draws through the real forward
+   model, adds them to the GP's training set, refits and samples again: the
    surrogate becomes exact where the posterior mass is, and spurious modes in
-   unexplored regions are visited and removed.
+   unexplored regions are visited and removed. With
+   ``refine_until_agreement`` the rounds stop as soon as a round's runs agree
+   with the surrogate (the same test as the predictive check).
 
 Finally ``n_check_draws`` fresh draws are run through the forward model and
 compared with the surrogate (:mod:`~profshape.posterior.check`).
@@ -150,6 +152,18 @@ def _sample_surrogate(
     return np.concatenate(samples), np.concatenate(logp), np.concatenate(real), diag
 
 
+def _disagree_fraction(
+    surrogate: LogLikelihoodSurrogate, u: np.ndarray, ll: np.ndarray,
+    settings: PosteriorSettings,
+) -> float:
+    """Fraction of forward runs more than 3 sigma from the surrogate (as in the check)."""
+    if len(ll) == 0:
+        return 1.0
+    mean, std = surrogate.predict(u, include_noise=True)
+    z = (ll - mean) / np.sqrt(std**2 + settings.check_tolerance_nats**2)
+    return float(np.mean(np.abs(z) > 3.0))
+
+
 def _check_dims(problem: Any, settings: PosteriorSettings) -> None:
     d = int(problem.dim)
     if settings.n_walkers < 2 * d:
@@ -202,7 +216,7 @@ def sample_posterior(
 
     Notes
     -----
-    Forward runs made: ``n_refine_rounds * n_refine_draws + 1 + n_check_draws``
+    Forward runs made: at most ``n_refine_rounds * n_refine_draws + 1 + n_check_draws``
     with the surrogate method (each runs every operating point);
     ``n_walkers * (n_steps + 1) + n_check_draws`` with the exact method.
     """
@@ -225,6 +239,7 @@ def sample_posterior(
     runs_frames: list[pd.DataFrame] = []
     n_forward = 0
     surrogate: LogLikelihoodSurrogate | None = None
+    refine_log: list[dict[str, Any]] = []
 
     def evaluate(u: np.ndarray, source: str) -> list[DrawRun]:
         nonlocal n_forward
@@ -272,11 +287,20 @@ def sample_posterior(
             runs = evaluate(unit_samples[pick], f"posterior_refine_{round_ + 1}")
             good = np.array([r.ok for r in runs], dtype=bool)
             new_ll = np.array([r.log_likelihood for r in runs])[good]
+            disagree = _disagree_fraction(surrogate, unit_samples[pick][good], new_ll, settings)
+            failed = 1.0 - good.mean()
+            refine_log.append({"round": round_ + 1, "n_runs": len(runs), "n_ok": int(good.sum()),
+                               "disagree_fraction": disagree, "failed_fraction": failed})
             u_train = np.vstack([u_train, unit_samples[pick][good]])
             ll_train = np.concatenate([ll_train, new_ll])
             # restart the next round's walkers from the best real points seen
             pool_u = u_train
             pool_score = ll_train + lp_u(u_train)
+            if settings.refine_until_agreement and (
+                disagree <= settings.check_max_disagree_fraction
+                and failed <= settings.check_max_failed_fraction
+            ):
+                break  # the surrogate already matches the real model where the mass sits
         u_all = u_train
         ll_all = ll_train
 
@@ -314,7 +338,7 @@ def sample_posterior(
         u_chk = unit_samples[pick]
         runs = evaluate(u_chk, "posterior_check")
         if surrogate is not None:
-            mean, std = surrogate.predict(u_chk)
+            mean, std = surrogate.predict(u_chk, include_noise=True)
         else:
             mean = log_post[pick] - lp_u(u_chk)
             std = np.zeros(n_chk)
@@ -342,6 +366,7 @@ def sample_posterior(
     diag["method"] = settings.method
     diag["n_forward_runs"] = n_forward
     diag["n_gp_trials"] = len(ll_all)
+    diag["refinement"] = refine_log
     if surrogate is not None:
         diag["surrogate"] = {
             "lengthscale_unit": surrogate.lengthscale.tolist(),

@@ -81,10 +81,13 @@ class PosteriorSettings:
         uncertainty widens the posterior. 0 samples on the GP mean only.
     n_features : int, default=1024
         Random Fourier features per GP realisation.
-    n_refine_rounds : int, default=1
-        Rounds of surrogate refinement: each runs ``n_refine_draws`` posterior
-        draws through the forward model, adds them to the GP's training data,
-        refits and samples again.
+    n_refine_rounds : int, default=3
+        Most rounds of surrogate refinement: each runs ``n_refine_draws``
+        posterior draws through the forward model, adds them to the GP's
+        training data, refits and samples again.
+    refine_until_agreement : bool, default=True
+        Stop refining after the first round whose forward runs agree with the
+        surrogate (disagreeing and failed fractions within the check limits).
     n_refine_draws : int, default=16
         Forward runs per refinement round.
     n_check_draws : int, default=16
@@ -117,7 +120,8 @@ class PosteriorSettings:
     thin: int = 1
     n_gp_draws: int = 8
     n_features: int = 1024
-    n_refine_rounds: int = 1
+    n_refine_rounds: int = 3
+    refine_until_agreement: bool = True
     n_refine_draws: int = 16
     n_check_draws: int = 16
     check_tolerance_nats: float = 1.0
@@ -140,6 +144,11 @@ class PosteriorSettings:
                 f"got {nw}. Use {nw + 1}."
             )
         object.__setattr__(self, "n_walkers", nw)
+        if not isinstance(self.refine_until_agreement, bool):
+            raise InputDataError(
+                "PosteriorSettings.refine_until_agreement must be True or False; got "
+                f"{self.refine_until_agreement!r}."
+            )
         n_steps = _int_at_least("n_steps", self.n_steps, 2, "Use a few thousand steps.")
         object.__setattr__(self, "n_steps", n_steps)
         burn = _int_at_least("burn_in", self.burn_in, 0, "Use 0 for no burn-in.")

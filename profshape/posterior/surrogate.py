@@ -115,12 +115,18 @@ class LogLikelihoodSurrogate:
         k = self.outputscale * _matern52(u2, self.train_u, self.lengthscale)
         return self.y_mean + self.y_std * (self.constant + k @ self._alpha)
 
-    def predict(self, u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    def predict(
+        self, u: np.ndarray, include_noise: bool = False
+    ) -> tuple[np.ndarray, np.ndarray]:
         """Posterior mean and standard deviation [nats] of the latent log-likelihood.
 
         Parameters
         ----------
         u : array_like of shape (n, d)
+        include_noise : bool, default=False
+            Add the fitted observation-noise variance (the scatter of repeated
+            forward runs, e.g. from solver convergence) to the variance: the
+            predictive spread of a new forward run.
 
         Returns
         -------
@@ -131,6 +137,8 @@ class LogLikelihoodSurrogate:
         mean = self.y_mean + self.y_std * (self.constant + k @ self._alpha)
         v = linalg.cho_solve(self._chol, k.T)
         var = np.maximum(self.outputscale - np.einsum("ij,ji->i", k, v), 0.0)
+        if include_noise:
+            var = var + self.noise
         return mean, self.y_std * np.sqrt(var)
 
     def draw_realisations(

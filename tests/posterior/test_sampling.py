@@ -115,7 +115,10 @@ def test_surrogate_path_matches_closed_form(linear_case):
     assert result.map_source in ("surrogate_optimum", "best_trial")
     # The check ran the real model and agrees with the surrogate.
     assert result.check.n_ok == 8 and result.check.passed
-    # Forward runs: 8 refinement + 1 MAP + 8 check, all logged in the trial layout.
+    # The first refinement round already agrees with the surrogate, so refinement stops
+    # there: 8 refinement + 1 MAP + 8 check runs, all logged in the trial layout.
+    refinement = result.diagnostics["refinement"]
+    assert len(refinement) == 1 and refinement[0]["disagree_fraction"] == 0.0
     assert result.diagnostics["n_forward_runs"] == 17
     assert set(result.forward_runs["source"]) == {"posterior_refine_1", "posterior_map",
                                                   "posterior_check"}
