@@ -282,5 +282,6 @@ def test_a_refused_start_does_not_block_the_corrected_file(tmp_path, capsys, tal
     assert (out / "calibration.toml").read_text() == good.read_text()
     # once a search has started there, another calibration is refused again
     (out / "trials.parquet.json").write_text("{}")
+    bad = _write_case(tmp_path, CASES[31][1](BASE))
     _refused(capsys, ["calibrate", str(bad), "--out", str(out), "--quiet"],
              "holds another calibration", tally)
