@@ -134,6 +134,6 @@ def plot_fit(
             ax.set_visible(False)
         handles, names = axes[0].get_legend_handles_labels()
         if handles:
-            axes[0].legend(handles, names, loc="lower right")
+            fig.legend(handles, names, loc="outside lower center", ncol=min(len(handles), 5))
     _style.save(fig, paths)
     return fig
