@@ -35,6 +35,7 @@ TALLY_LINES = (
     ("sigint_survived", "SIGINT interruptions stopped cleanly"),
     ("bad_inputs_tried", "bad inputs tried"),
     ("bad_inputs_refused", "bad inputs refused with a clear error"),
+    ("property_refused", "generated inputs (hypothesis) refused with InputDataError"),
     ("escapes_refused", "external-adapter escape attempts refused"),
 )
 

@@ -137,9 +137,14 @@ def _assert_hung_children_dead(work: Path) -> int:
     for pid_file in work.glob("*/child.pid"):
         pid = int(pid_file.read_text())
         n += 1
-        if psutil.pid_exists(pid):
+        try:  # a killed process may take a moment to go
             proc = psutil.Process(pid)
-            assert proc.status() == psutil.STATUS_ZOMBIE, f"hung child {pid} still runs"
+            if proc.status() != psutil.STATUS_ZOMBIE:
+                proc.wait(timeout=5)
+        except psutil.NoSuchProcess:
+            pass
+        except psutil.TimeoutExpired:
+            raise AssertionError(f"hung child {pid} still runs after its run timed out") from None
     return n
 
 
@@ -177,3 +182,14 @@ def test_program_faults_on_a_process_pool(tmp_path, tally, no_leftover_processes
         lambda f: PROGRAM_REASONS[f], tally,
     )
     _assert_hung_children_dead(tmp_path / "work")
+
+
+@pytest.mark.xfail(strict=True, raises=Exception, reason=(
+    "known gap: a forward *callable* that kills its own worker process (os._exit, a "
+    "segfault) breaks the whole ProcessPoolExecutor; run_search then raises "
+    "BrokenProcessPool at the next submit. Wrap crash-prone code in ExternalModel, "
+    "whose program crash is an ordinary failed trial (see test_each_program_fault)."))
+def test_a_callable_that_kills_its_worker(tmp_path, no_leftover_processes):
+    problem = make_problem(FaultyFunction(rate=RATE, kinds=("hard_exit",)))
+    result = run_search(problem, _settings(n_workers=2), tmp_path / "log.parquet")
+    assert result.n_trials == 12 and result.stop_reason == "budget"
