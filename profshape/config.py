@@ -140,6 +140,12 @@ class CalibrationConfig:
 
 def _line_of(text: str, dotted: str) -> int | None:
     """Line (1-based) where ``dotted`` key is set, by scanning table headers."""
+    whole = re.fullmatch(r"([\w.]+)\[(\d+)\]", dotted)
+    if whole:  # an element of an array of tables: its own [[header]]
+        name, nth = whole.group(1), int(whole.group(2))
+        heads = [n for n, raw in enumerate(text.splitlines(), start=1)
+                 if re.match(rf"^\s*\[\[\s*{re.escape(name)}\s*\]\]", raw)]
+        return heads[nth] if nth < len(heads) else None
     parts = [re.sub(r"\[\d+\]", "", p) for p in dotted.split(".")]
     index = [int(m) for m in re.findall(r"\[(\d+)\]", dotted)]
     *tables, key = parts
@@ -210,8 +216,10 @@ def _check_table(table: Any, schema: Mapping[str, Any], where: str, cfg: Calibra
         elif spec == "point-list":
             out[key] = _check_points(value, dotted, cfg) if value is not None else []
         elif spec == "start-list":
-            if value is not None and not (isinstance(value, list) and all(isinstance(v, dict) for v in value)):
-                raise cfg.error(dotted, "must be an array of tables ([[shape.start]]) of coefficients by name.")
+            tables = isinstance(value, list) and all(isinstance(v, dict) for v in value)
+            if value is not None and not tables:
+                raise cfg.error(dotted, "must be an array of tables ([[shape.start]]) of coefficients "
+                                "by name.")
             out[key] = value or []
         else:
             types, required, default = spec
@@ -245,7 +253,10 @@ def parse_config(text: str, path: str | Path = "<string>", base_dir: str | Path 
         TOML syntax errors (with the line), unknown keys, wrong types, missing keys.
     """
     path = Path(path)
-    base = Path(base_dir) if base_dir is not None else (path.parent if path.name != "<string>" else Path.cwd())
+    if base_dir is not None:
+        base = Path(base_dir)
+    else:
+        base = path.parent if path.name != "<string>" else Path.cwd()
     cfg = CalibrationConfig(path=path, base_dir=base.resolve(), data={}, text=text)
     try:
         raw = tomllib.loads(text)
@@ -271,6 +282,13 @@ def parse_config(text: str, path: str | Path = "<string>", base_dir: str | Path 
     for key in ("budget", "batch_size"):
         if cfg.data["search"][key] < 1:
             raise cfg.error(f"search.{key}", f"must be >= 1; got {cfg.data['search'][key]!r}.")
+    fm = cfg.data["forward_model"]
+    if not fm["timeout_s"] > 0:
+        raise cfg.error("forward_model.timeout_s", f"must be > 0 [s]; got {fm['timeout_s']!r}.")
+    if fm["retries"] < 0:
+        raise cfg.error("forward_model.retries", f"must be >= 0; got {fm['retries']!r}.")
+    if fm["grid_points"] < 2:
+        raise cfg.error("forward_model.grid_points", f"must be >= 2; got {fm['grid_points']!r}.")
     if cfg.data["workers"]["n_workers"] < 1:
         raise cfg.error("workers.n_workers", "must be >= 1.")
     return cfg

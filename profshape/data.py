@@ -27,6 +27,7 @@ silently. Unsorted positions are sorted with a warning; duplicates are refused.
 from __future__ import annotations
 
 import math
+import re
 import warnings
 from collections.abc import Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
@@ -152,7 +153,7 @@ class IonVelocityProfile:
             if bad.size:
                 i = bad[0]
                 raise InputDataError(
-                    f"{_where(self.source, rows[i], name)}: value {a[i]!r} is not finite; "
+                    f"{_where(self.source, rows[i], name)}: value {float(a[i])!r} is not finite; "
                     "give a number (missing measurements must be removed, not left blank)."
                 )
         for name in ("sigma_ion_velocity_m_s",):
@@ -161,7 +162,7 @@ class IonVelocityProfile:
                 i = bad[0]
                 raise InputDataError(
                     f"{_where(self.source, rows[i], name)}: uncertainty must be > 0; got "
-                    f"{arrays[name][i]!r} ({bad.size} value(s) <= 0 at rows "
+                    f"{float(arrays[name][i])!r} ({bad.size} value(s) <= 0 at rows "
                     f"{[rows[j] for j in bad[:10]]})."
                 )
         if "sigma_z_m" in arrays:
@@ -170,20 +171,20 @@ class IonVelocityProfile:
                 i = bad[0]
                 raise InputDataError(
                     f"{_where(self.source, rows[i], 'sigma_z_m')}: position uncertainty must "
-                    f"be >= 0; got {arrays['sigma_z_m'][i]!r}."
+                    f"be >= 0; got {float(arrays['sigma_z_m'][i])!r}."
                 )
         z = arrays["z_m"]
         if np.max(np.abs(z)) > _MAX_PLAUSIBLE_Z_M:
             i = int(np.argmax(np.abs(z)))
             raise InputDataError(
-                f"{_where(self.source, rows[i], 'z_m')}: position {z[i]!r} looks like "
+                f"{_where(self.source, rows[i], 'z_m')}: position {float(z[i])!r} looks like "
                 "millimetres; positions must be in metres (divide by 1000)."
             )
         if "sigma_z_m" in arrays and np.max(arrays["sigma_z_m"]) > 0.1:
             i = int(np.argmax(arrays["sigma_z_m"]))
             raise InputDataError(
                 f"{_where(self.source, rows[i], 'sigma_z_m')}: position uncertainty "
-                f"{arrays['sigma_z_m'][i]!r} looks like millimetres; give it in metres."
+                f"{float(arrays['sigma_z_m'][i])!r} looks like millimetres; give it in metres."
             )
         v = arrays["ion_velocity_m_s"]
         if np.max(np.abs(v)) < _MIN_PLAUSIBLE_PEAK_VELOCITY_M_S:
@@ -198,7 +199,7 @@ class IonVelocityProfile:
         if dup.size:
             i, j = order[dup[0]], order[dup[0] + 1]
             raise InputDataError(
-                f"{_where(self.source, rows[j], 'z_m')}: position {z[j]!r} m repeats row "
+                f"{_where(self.source, rows[j], 'z_m')}: position {float(z[j])!r} m repeats row "
                 f"{rows[i]}; combine repeated measurements into one point or remove one."
             )
         if np.any(order != np.arange(n)):
@@ -225,7 +226,7 @@ class IonVelocityProfile:
         if outside.size:
             i = outside[0]
             raise InputDataError(
-                f"{_where(self.source, self.rows[i], 'z_m')}: position {self.z_m[i]!r} m is "
+                f"{_where(self.source, self.rows[i], 'z_m')}: position {float(self.z_m[i])!r} m is "
                 f"outside the model domain [{z_min_m!r}, {z_max_m!r}] m ({outside.size} "
                 "point(s)); remove those points or extend the model domain."
             )
@@ -467,7 +468,7 @@ def _check_columns(df: pd.DataFrame, path: Path | str, required: Sequence[str],
     missing = [c for c in required if c not in cols]
     unknown = [c for c in cols if c not in required and c not in optional]
     hint = ""
-    if any("mm" in c.lower() for c in cols):
+    if any(re.search(r"(^|_)mm($|_)", c.lower()) for c in cols):
         hint = " A column name mentions millimetres: give positions in metres (z_m)."
     if missing:
         raise InputDataError(

@@ -337,7 +337,9 @@ def open_output_folder(cfg: CalibrationConfig, out_dir: str | Path, resume: bool
         probe.write_text("")
         probe.unlink()
     except OSError as exc:
-        raise InputDataError(f"output folder {out} is not writable ({exc.strerror}); choose another --out.") from None
+        raise InputDataError(
+            f"output folder {out} is not writable ({exc.strerror}); choose another --out."
+        ) from None
     (out / CONFIG_COPY).write_text(cfg.text, encoding="utf-8")
     _atomic_json(run_file, {"fingerprint": fp, "base_dir": str(cfg.base_dir),
                             "source": str(cfg.path), "version": __version__,

@@ -191,12 +191,12 @@ class CalibrationProblem:
             rest = c[d:]
             for i, p in enumerate(self._extra):
                 if not math.isfinite(rest[i]):
-                    raise InputDataError(f"coefficient {p.name!r} is {rest[i]!r}; give a number.")
+                    raise InputDataError(f"coefficient {p.name!r} is {float(rest[i])!r}; give a number.")
                 span = b[i, 1] - b[i, 0]
                 if rest[i] < b[i, 0] - 1e-9 * span or rest[i] > b[i, 1] + 1e-9 * span:
                     raise InputDataError(
-                        f"coefficient {p.name!r} = {rest[i]!r} is outside its bounds "
-                        f"[{b[i, 0]!r}, {b[i, 1]!r}] [{p.unit}]."
+                        f"coefficient {p.name!r} = {float(rest[i])!r} is outside its bounds "
+                        f"[{float(b[i, 0])!r}, {float(b[i, 1])!r}] [{p.unit}]."
                     )
             rest = np.clip(rest, b[:, 0], b[:, 1])
             return np.concatenate([shape_part, rest])

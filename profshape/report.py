@@ -351,7 +351,8 @@ def _report_markdown(summary: dict[str, Any], posterior: Any, bands: Any,
         for r in predictions.to_dict("records"):
             meas = (f"{_fmt(r.get('measured'))} ± {_fmt(r.get('measured_sigma'))}"
                     if r.get("measured") is not None and _fmt(r.get("measured")) != "n/a" else "")
-            extra = str(r.get("extrapolation_reason") or "") if r.get("extrapolation") in (True, "True") else ""
+            flagged = r.get("extrapolation") in (True, "True")
+            extra = str(r.get("extrapolation_reason") or "") if flagged else ""
             lines.append(f"| {r['label']} | {r['name']} | {r.get('unit', '')} | {_fmt(r['median'])} | "
                          + " | ".join(_fmt(r[c]) for c in cols) + f" | {meas} | {extra} |")
     if summary["figures"]:

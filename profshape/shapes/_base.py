@@ -187,7 +187,7 @@ class ShapeFamily(ABC):
         if bad.any():
             row, col = np.argwhere(bad)[0]
             raise InputDataError(
-                f"{self.name}: coefficient {self.names[col]!r} is {c2[row, col]!r}"
+                f"{self.name}: coefficient {self.names[col]!r} is {float(c2[row, col])!r}"
                 + (f" (row {row})" if c.ndim == 2 else "")
                 + "; coefficients must be finite numbers."
             )
@@ -198,9 +198,9 @@ class ShapeFamily(ABC):
         if (low | high).any():
             row, col = np.argwhere(low | high)[0]
             raise InputDataError(
-                f"{self.name}: coefficient {self.names[col]!r} = {c2[row, col]!r}"
+                f"{self.name}: coefficient {self.names[col]!r} = {float(c2[row, col])!r}"
                 + (f" (row {row})" if c.ndim == 2 else "")
-                + f" is outside its bounds [{b[col, 0]!r}, {b[col, 1]!r}] "
+                + f" is outside its bounds [{float(b[col, 0])!r}, {float(b[col, 1])!r}] "
                 f"[{self.units[col]}]; give a value inside them or widen the bounds."
             )
         c2 = np.clip(c2, b[:, 0], b[:, 1])

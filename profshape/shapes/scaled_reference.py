@@ -65,7 +65,7 @@ class ScaledReference(ShapeFamily):
             if np.any(v_ref <= 0):
                 i = int(np.argmax(v_ref <= 0))
                 raise InputDataError(
-                    f"scaled_reference: reference values must be > 0; got {v_ref[i]!r} at index {i}."
+                    f"scaled_reference: reference values must be > 0; got {float(v_ref[i])!r} at index {i}."
                 )
             self._ref_callable = None
             self._ref_z, self._ref_log = z_ref, np.log10(v_ref)
