@@ -136,3 +136,24 @@ def test_tell_and_settings_errors_name_the_field():
         SearchSettings(budget=3, target_reduced_chi2=-1.0)
     with pytest.raises(ConfigError, match="raw_samples"):
         SearchSettings(budget=3, num_restarts=10, raw_samples=5)
+
+
+def test_warm_start_kept_for_restore_and_threads_restored():
+    space = SearchSpace(["x", "y"], [[0, 1], [0, 1]])
+    settings = _fast(budget=12, n_initial=5, seed=4, objective_transform="log")
+
+    def f(p):
+        return 1.0 + (p.coefficients["x"] - 0.3) ** 2 + (p.coefficients["y"] - 0.6) ** 2
+
+    threads = torch.get_num_threads()
+    a = Search(space, settings)
+    while a.n_issued < 8:
+        for p in a.ask():
+            a.tell(p.trial, f(p))
+    assert torch.get_num_threads() == threads  # the search's one thread is given back
+    warm = a.warm_start()
+    assert set(warm) == {"objective"} and warm["objective"]
+    # a search restored from the same log (with the warm start) proposes the same next trial
+    b = Search(space, settings)
+    b.restore(a.observations, [], a.state(), warm)
+    np.testing.assert_array_equal(a.ask()[0].u, b.ask()[0].u)
