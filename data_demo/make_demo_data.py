@@ -29,10 +29,10 @@ SEED = 20261201
 
 #: The hidden truth (a Bohm-like coefficient profile of the smooth_step family).
 TRUTH = {
-    "log10_inner_level": -2.35,
-    "log10_outer_level": -1.05,
-    "transition_z_m": 0.0262,
-    "transition_width_m": 0.0024,
+    "log10_inner_level": -2.2,
+    "log10_outer_level": -1.1,
+    "transition_z_m": 0.0255,
+    "transition_width_m": 0.0025,
 }
 #: LIF positions [m] along the channel centre line (anode at 0, exit at 24 mm).
 POSITIONS_M = np.array([4.0, 8.0, 12.0, 15.0, 18.0, 20.0, 22.0, 24.0, 26.0, 28.0,
