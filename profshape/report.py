@@ -299,6 +299,8 @@ def _figures(out: Path, cal: Any, trials: pd.DataFrame, posterior: Any, bands: A
 
 
 def _fmt(x: Any, digits: int = 4) -> str:
+    if isinstance(x, (bool, np.bool_)):
+        return "yes" if x else "no"
     try:
         v = float(x)
     except (TypeError, ValueError):
