@@ -156,6 +156,7 @@ class Search:
         self.feasibility_model_ = None
         self.acquisition_ = None
         self._warm: dict[str, dict[str, list[float]]] = {}
+        self._kinds: dict[int, str] = {}
 
     # ------------------------------------------------------------------ state
     @property
@@ -209,6 +210,17 @@ class Search:
         return self.stop_rules.reason(
             self._next_trial, math.inf if b is None else b.value, later
         )
+
+    def kind_of(self, trial: int, default: str = "") -> str:
+        """How trial ``trial`` was proposed (see :attr:`proposal_kinds`), else ``default``."""
+        return self._kinds.get(int(trial), default)
+
+    @property
+    def proposal_kinds(self) -> dict[int, str]:
+        """Kind of each model-based proposal by trial index: ``"global"`` expected
+        improvement over the whole cube or ``"trust_region"`` (see
+        :mod:`profshape.search.trust_region`)."""
+        return dict(self._kinds)
 
     def _coefficients(self, u: np.ndarray) -> dict[str, float]:
         x = np.asarray(self.space.from_unit(np.asarray(u, dtype=float)), dtype=float).reshape(-1)

@@ -6,6 +6,16 @@ runs every operating point of every trial as its own task on a
 trials of one batch run in parallel), judges each finished trial with
 ``problem.outcome`` and appends it to the parquet trial log
 (:mod:`profshape.trials`) as soon as it is finished.
+
+A forward function that takes its worker process with it (``os._exit``, a
+segfault) breaks a :class:`~concurrent.futures.ProcessPoolExecutor`: every
+task in flight on it ends with
+:class:`~concurrent.futures.process.BrokenProcessPool`. Those trials are
+logged as failed ("worker process died: ..."); a pool that ``run_search``
+made itself is then replaced by a fresh one and the search goes on, while a
+broken executor passed in by the caller ends the search with a
+:class:`~profshape.exceptions.ForwardModelError` once every finished trial is
+logged.
 """
 
 from __future__ import annotations
@@ -15,7 +25,8 @@ import math
 import os
 import pickle
 import time
-from concurrent.futures import FIRST_COMPLETED, Executor, Future, wait
+from collections.abc import Callable
+from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, Executor, Future, wait
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
 from pathlib import Path
@@ -90,9 +101,20 @@ def _is_pickling_error(exc: BaseException) -> bool:
     return "pickl" in text and isinstance(exc, (TypeError, AttributeError, pickle.PicklingError))
 
 
+#: Start of the reason logged for a trial whose worker process died.
+WORKER_DIED = "worker process died"
+
+
 def _result(future: Future) -> Prediction:
     try:
         out = future.result()
+    except BrokenExecutor as exc:
+        return Prediction.failure(
+            "failed",
+            f"{WORKER_DIED}: {type(exc).__name__}: {exc} (a forward run in flight at the "
+            "same time ended its worker process, e.g. by os._exit or a segfault; wrap "
+            "crash-prone code in profshape.forward.external.ExternalModel)",
+        )
     except Exception as exc:
         if _is_pickling_error(exc):
             raise ForwardModelError(
@@ -142,34 +164,78 @@ def _row(problem: Any, run: _Running, outcome: Any, finished_at: datetime, seed:
     return row
 
 
-class _Runner:
-    """Submits trials point by point and collects finished trials."""
+class _ExecutorBroke(Exception):
+    """Internal: the caller's executor is broken (carries the original error)."""
 
-    def __init__(self, problem: Any, executor: Executor):
+
+class _Runner:
+    """Submits trials point by point and collects finished trials.
+
+    Parameters
+    ----------
+    problem : CalibrationProblem
+    executor : Executor
+        Where the forward runs go.
+    renew : callable or None
+        Makes a fresh executor after this one broke (``None``: the executor
+        belongs to the caller and is not replaced).
+    """
+
+    def __init__(self, problem: Any, executor: Executor,
+                 renew: Callable[[], Executor] | None = None):
         self.problem = problem
         self.executor = executor
+        self.renew = renew
         self.points = {p.label: p for p in problem.dataset.operating_points}
         self.running: dict[int, _Running] = {}
+        self.broken: BaseException | None = None
+        self.n_replaced = 0
 
     def submit(self, proposal: Proposal, source: str) -> None:
+        """Submit every point of a trial (on a fresh pool if the current one broke).
+
+        Raises
+        ------
+        _ExecutorBroke
+            If the caller's executor is broken.
+        """
         c = np.array([proposal.coefficients[n] for n in self.problem.names])
-        futures = {}
-        for lab in self.problem.dataset.labels:
-            profile = self.problem.profile_for(c, lab)
-            futures[lab] = self.executor.submit(
-                self.problem.forward_model, profile, self.points[lab]
-            )
+        profiles = {lab: self.problem.profile_for(c, lab) for lab in self.problem.dataset.labels}
+        for attempt in range(2):
+            futures = {}
+            try:
+                for lab, profile in profiles.items():
+                    futures[lab] = self.executor.submit(
+                        self.problem.forward_model, profile, self.points[lab]
+                    )
+            except BrokenExecutor as exc:
+                self.broken = exc
+                if self.renew is None or attempt == 1:
+                    raise _ExecutorBroke(exc) from exc
+                self._replace()
+                continue
+            break
         self.running[proposal.trial] = _Running(
             proposal, source, futures, _now(), time.perf_counter()
         )
 
+    def _replace(self) -> None:
+        """Shut the broken pool down (so all its futures are settled) and start a new one."""
+        # no cancel_futures: the broken pool's manager thread fails every task itself
+        self.executor.shutdown(wait=True)
+        self.executor = self.renew()
+        self.broken = None
+        self.n_replaced += 1
+
     def wait_finished(self) -> list[tuple[_Running, Any, datetime]]:
         """Block until at least one trial has all its points done."""
+        finished = []
         while True:
-            finished = []
             for trial, run in list(self.running.items()):
                 for lab, fut in run.futures.items():
                     if lab not in run.done and fut.done():
+                        if not fut.cancelled() and isinstance(fut.exception(), BrokenExecutor):
+                            self.broken = fut.exception()
                         run.done[lab] = _result(fut)
                 if len(run.done) == len(run.futures):
                     del self.running[trial]
@@ -177,6 +243,11 @@ class _Runner:
                     preds = {lab: run.done[lab] for lab in run.futures}
                     outcome = self.problem.outcome(c, preds, time.perf_counter() - run.t0)
                     finished.append((run, outcome, _now()))
+            if self.broken is not None and self.renew is not None:
+                # every task of a broken pool ends in BrokenProcessPool; shutting the pool
+                # down settles them all, so the next sweep collects those trials
+                self._replace()
+                continue
             if finished:
                 return sorted(finished, key=lambda f: f[0].proposal.trial)
             pending = [f for r in self.running.values() for f in r.futures.values()
@@ -287,46 +358,69 @@ def run_search(
             )
         _restore(search, log, settings, problem)
     own = executor is None
+    renew = None
     if own:
         from ..executors import local_executor
 
-        executor = local_executor(settings.workers)
-    runner = _Runner(problem, executor)
+        def renew() -> Executor:
+            return local_executor(settings.workers)
+
+        executor = renew()
+    runner = _Runner(problem, executor, renew)
     progress = SearchProgress(settings.budget, settings.progress, initial=search.n_finished)
-    for p in search.pending:  # in flight at the interruption
-        runner.submit(p, "resumed")
     stop_reason: str | None = None
+
+    def collect() -> None:
+        for run, outcome, finished_at in runner.wait_finished():
+            row = _row(problem, run, outcome, finished_at, settings.seed)
+            value = row["reduced_chi2"]
+            search.tell(run.proposal.trial, value if outcome.ok else None, ok=outcome.ok)
+            log.append(row)
+            progress.update(outcome.ok, value, search.kind_of(run.proposal.trial, run.source))
+        log.write_sidecar(_sidecar(search, settings, problem, None))
+
     try:
         log.write_sidecar(_sidecar(search, settings, problem, None))
-        while True:
-            stop_reason = search.stop_reason()
-            if stop_reason is None:
-                room = settings.workers - len(runner.running)
-                if settings.asynchronous and room > 0:
-                    proposals = search.ask(room)
-                elif not runner.running:
-                    proposals = search.ask(settings.batch_size)
-                else:
-                    proposals = []
-                if proposals:
-                    log.write_sidecar(_sidecar(search, settings, problem, None))
-                    for p in proposals:
-                        runner.submit(p, p.source)
-            if not runner.running:
-                break
-            for run, outcome, finished_at in runner.wait_finished():
-                row = _row(problem, run, outcome, finished_at, settings.seed)
-                value = row["reduced_chi2"]
-                search.tell(run.proposal.trial, value if outcome.ok else None, ok=outcome.ok)
-                log.append(row)
-                progress.update(outcome.ok, value, run.source)
-            log.write_sidecar(_sidecar(search, settings, problem, None))
+        try:
+            for p in search.pending:  # in flight at the interruption
+                runner.submit(p, "resumed")
+            while True:
+                stop_reason = search.stop_reason()
+                if stop_reason is None:
+                    room = settings.workers - len(runner.running)
+                    if settings.asynchronous and room > 0:
+                        proposals = search.ask(room)
+                    elif not runner.running:
+                        proposals = search.ask(settings.batch_size)
+                    else:
+                        proposals = []
+                    if proposals:
+                        log.write_sidecar(_sidecar(search, settings, problem, None))
+                        for p in proposals:
+                            runner.submit(p, p.source)
+                if not runner.running:
+                    break
+                collect()
+                if runner.broken is not None:  # the caller's executor
+                    raise _ExecutorBroke(runner.broken)
+        except _ExecutorBroke as broke:
+            while runner.running:  # a broken executor fails every task it holds
+                collect()
+            cause = broke.args[0]
+            raise ForwardModelError(
+                f"the executor passed to run_search broke ({type(cause).__name__}: {cause}); "
+                "usually a forward run ended its worker process (os._exit, a segfault). "
+                f"The {search.n_finished} finished trials are in {str(log_path)!r}; start a "
+                "new executor and resume (resume=True), let run_search make its own process "
+                "pool (it replaces a broken one), or wrap crash-prone code in "
+                "profshape.forward.external.ExternalModel."
+            ) from cause
         stop_reason = search.stop_reason() or "budget"
         log.write_sidecar(_sidecar(search, settings, problem, stop_reason))
     finally:
         progress.close()
         if own:
-            executor.shutdown(wait=True, cancel_futures=True)
+            runner.executor.shutdown(wait=True, cancel_futures=True)
     best = search.best()
     return SearchResult(
         trials=log.frame(),

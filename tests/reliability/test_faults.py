@@ -184,12 +184,8 @@ def test_program_faults_on_a_process_pool(tmp_path, tally, no_leftover_processes
     _assert_hung_children_dead(tmp_path / "work")
 
 
-@pytest.mark.xfail(strict=True, raises=Exception, reason=(
-    "known gap: a forward *callable* that kills its own worker process (os._exit, a "
-    "segfault) breaks the whole ProcessPoolExecutor; run_search then raises "
-    "BrokenProcessPool at the next submit. Wrap crash-prone code in ExternalModel, "
-    "whose program crash is an ordinary failed trial (see test_each_program_fault)."))
 def test_a_callable_that_kills_its_worker(tmp_path, no_leftover_processes):
     problem = make_problem(FaultyFunction(rate=RATE, kinds=("hard_exit",)))
+    # run_search logs the trials whose worker died as failed and replaces its process pool
     result = run_search(problem, _settings(n_workers=2), tmp_path / "log.parquet")
     assert result.n_trials == 12 and result.stop_reason == "budget"
