@@ -100,11 +100,15 @@ class PosteriorSettings:
         Warn when more than this fraction of checked draws disagree (|z| > 3).
     check_max_failed_fraction : float, default=0.25
         Warn when more than this fraction of checked draws fail to run.
-    log_likelihood_floor_nats : float, default=40.0
+    log_likelihood_floor_nats : float, default=150.0
         Trials whose log-likelihood lies more than this below the best are
-        clipped to ``best - floor`` before the GP fit: such regions carry no
-        posterior mass (``exp(-40)``), and clipping keeps the GP's scale set by
-        the region that matters.
+        clipped to ``best - floor`` before the GP fit, so the GP's scale is set
+        by the region that matters. The clipped plateau still holds posterior
+        mass ``exp(-floor)`` times its volume, against a peak of volume about
+        ``prod(sigma_i)`` (unit cube): the floor must exceed ``-ln`` of that
+        volume by a margin. 40 nats proved too shallow on a 4-coefficient
+        problem with the built-in solver (the plateau took the mass); 150 covers
+        narrow posteriors in up to ~20 dimensions.
     max_gp_trials : int, default=400
         At most this many ok trials (the best ones) train the GP.
     band_levels : tuple of float, default=(0.68, 0.95)
@@ -127,7 +131,7 @@ class PosteriorSettings:
     check_tolerance_nats: float = 1.0
     check_max_disagree_fraction: float = 0.25
     check_max_failed_fraction: float = 0.25
-    log_likelihood_floor_nats: float = 40.0
+    log_likelihood_floor_nats: float = 150.0
     max_gp_trials: int = 400
     band_levels: tuple[float, ...] = field(default=(0.68, 0.95))
     seed: int | None = 0
@@ -175,7 +179,7 @@ class PosteriorSettings:
         object.__setattr__(
             self, "log_likelihood_floor_nats",
             _positive_float("log_likelihood_floor_nats", self.log_likelihood_floor_nats,
-                            "Use about 40."),
+                            "Use about 150."),
         )
         for name in ("check_max_disagree_fraction", "check_max_failed_fraction"):
             v = getattr(self, name)

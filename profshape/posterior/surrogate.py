@@ -182,7 +182,7 @@ def fit_log_likelihood_surrogate(
     unit: np.ndarray,
     log_likelihood: np.ndarray,
     *,
-    floor_nats: float = 40.0,
+    floor_nats: float = 150.0,
     max_trials: int = 400,
     seed: int | None = 0,
 ) -> LogLikelihoodSurrogate:
@@ -194,7 +194,7 @@ def fit_log_likelihood_surrogate(
         Trial coordinates in the unit cube.
     log_likelihood : array_like of shape (n,)
         Finite log-likelihoods [nats] of those trials.
-    floor_nats : float, default=40.0
+    floor_nats : float, default=150.0
         Values below ``max - floor_nats`` are clipped to it.
     max_trials : int, default=400
         Keep at most this many trials (the highest log-likelihoods).

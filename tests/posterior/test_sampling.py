@@ -183,3 +183,28 @@ def test_bad_trials_are_refused(linear_case):
         sample_posterior(problem, trials.head(3))
     with pytest.raises(InputDataError, match="too few for 2 parameters"):
         sample_posterior(problem, trials, PosteriorSettings(n_walkers=2))
+
+
+def test_surrogate_path_narrow_four_coefficient_posterior():
+    # A narrow 4-coefficient linear-Gaussian posterior (widths 0.4-2 % of the bounds) with
+    # trial log-likelihoods spanning 10^4 nats. The closed form (Bishop 2006, section 3.3)
+    # must be recovered: mean within 0.5 sd, widths within [0.8, 1.6] of the exact ones
+    # (the upper allowance is the surrogate's own uncertainty). A clipping floor of 40 nats
+    # fails this (the clipped plateau takes mass; widths up to 2.5x were measured).
+    from ._linear import make_problem, make_trials
+
+    problem, _ = make_problem(np.array([-1.0, 0.4, 0.2, -0.1]), n_z=40, sigma_m_s=100.0,
+                              seed=5)
+    mean, cov = exact_posterior(problem)
+    sd = np.sqrt(np.diag(cov))
+    trials = make_trials(problem, n_design=40, n_local=40, seed=3, spread=4.0)
+    settings = PosteriorSettings(n_walkers=16, n_steps=500, burn_in=150, n_gp_draws=4,
+                                 n_refine_draws=8, n_check_draws=8)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        result = sample_posterior(problem, trials, settings)
+    samples = result.samples.to_numpy()
+    assert np.all(np.abs(samples.mean(0) - mean) < 0.5 * sd)
+    ratio = samples.std(0) / sd
+    assert np.all((ratio > 0.8) & (ratio < 1.6)), ratio
+    assert result.check.passed
