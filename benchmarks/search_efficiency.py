@@ -23,6 +23,7 @@ Usage::
     python benchmarks/search_efficiency.py [--seeds 5] [--budget 60] [--jobs 2]
     python benchmarks/search_efficiency.py --quick         # 2 seeds, budget 40
     python benchmarks/search_efficiency.py --overhead-only
+    python benchmarks/search_efficiency.py --quick --strategies --no-overhead
 """
 
 from __future__ import annotations
@@ -85,10 +86,11 @@ class Counter:
         return int(hit[0]) + 1 if hit.size else self.budget + 1
 
 
-def run_bo(problem, budget, seed, target):
+def run_bo(problem, budget, seed, target, strategy=None):
     c = Counter(problem, budget)
+    extra = {} if strategy is None else {"strategy": strategy}
     s = Search(problem, SearchSettings(budget=budget, seed=seed, target_reduced_chi2=target,
-                                       progress=False))
+                                       progress=False, **extra))
     while not s.stop_reason():
         for p in s.ask():
             v = c(p.u)
@@ -127,15 +129,25 @@ def run_nm(problem, budget, seed, target):
     return c
 
 
-METHODS = {"BO (this search)": run_bo, "Sobol random": run_sobol,
+def _bo_with(strategy):
+    def run(problem, budget, seed, target):
+        return run_bo(problem, budget, seed, target, strategy)
+    return run
+
+
+BO = "BO (this search)"
+METHODS = {BO: run_bo, "Sobol random": run_sobol,
            "differential_evolution": run_de, "Nelder-Mead": run_nm}
+#: The search with each proposal strategy forced (--strategies).
+STRATEGY_METHODS = {f"BO strategy={k}": _bo_with(k) for k in ("global", "trust_region", "hybrid")}
+ALL_METHODS = {**METHODS, **STRATEGY_METHODS}
 
 
 def _task(method: str, seed: int, budget: int, target: float, n_cells: int
           ) -> tuple[str, int, int, float, float]:
     problem = make_problem(n_cells)
     t0 = time.perf_counter()
-    c = METHODS[method](problem, budget, seed, target)
+    c = ALL_METHODS[method](problem, budget, seed, target)
     finite = [v for v in c.history if np.isfinite(v)]
     return (method, seed, c.runs_to(target), min(finite) if finite else np.inf,
             time.perf_counter() - t0)
@@ -175,19 +187,26 @@ def main() -> None:
     ap.add_argument("--jobs", type=int, default=2, help="processes for the (method, seed) runs")
     ap.add_argument("--quick", action="store_true", help="2 seeds, budget 40")
     ap.add_argument("--overhead-only", action="store_true")
+    ap.add_argument("--strategies", action="store_true",
+                    help="also run the search with each proposal strategy forced")
+    ap.add_argument("--no-overhead", action="store_true")
+    ap.add_argument("--only", default="", help="run only methods whose name contains this")
     args = ap.parse_args()
     if not args.overhead_only:
         seeds = 2 if args.quick else args.seeds
         budget = 40 if args.quick else args.budget
         t0 = time.perf_counter()
-        jobs = [(m, s) for s in range(seeds) for m in METHODS]
+        methods = {**METHODS, **(STRATEGY_METHODS if args.strategies else {})}
+        methods = {k: v for k, v in methods.items() if args.only in k or k == BO}
+        jobs = [(m, s) for s in range(seeds) for m in methods]
         with ProcessPoolExecutor(args.jobs, mp_context=multiprocessing.get_context("spawn")) as ex:
             futs = [ex.submit(_task, m, s, budget, args.target, args.n_cells) for m, s in jobs]
             out = [f.result() for f in futs]
-        res = {m: [r for r in out if r[0] == m] for m in METHODS}
+        res = {m: [r for r in out if r[0] == m] for m in methods}
         med = {m: float(np.median([r[2] for r in v])) for m, v in res.items()}
-        bo = med["BO (this search)"]
-        best_other = min(v for m, v in med.items() if m != "BO (this search)")
+        bo = med[BO]
+        best_other = min((v for m, v in med.items() if m in METHODS and m != BO),
+                         default=float("nan"))
         print(f"forward runs to reduced chi2 <= {args.target} (median of {seeds} seeds, "
               f"budget {budget}, n_cells {args.n_cells}; budget + 1 = not reached)")
         print(f"  {'method':<24}{'median':>7}{'ratio':>8}   runs per seed; best reduced chi2 "
@@ -198,6 +217,8 @@ def main() -> None:
             print(f"  {m:<24}{med[m]:>7.1f}{med[m] / bo:>8.2f}   {runs}; {bests}")
         print(f"  best other / this search: {best_other / bo:.2f}x (goal >= 3x); "
               f"wall {time.perf_counter() - t0:.0f} s")
+    if args.no_overhead:
+        return
     print("overhead per proposal (GP fit + acquisition optimisation), running search [s]")
     print("  wall / CPU (median of 3), and the first (cold-start) proposal's wall")
     for d in (4, 8):

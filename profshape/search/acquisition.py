@@ -111,8 +111,14 @@ def optimize_acquisition(
     num_restarts: int,
     raw_samples: int,
     seed: int,
+    bounds: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Maximise ``acq`` over the unit cube.
+    """Maximise ``acq`` over the unit cube, or over the box ``bounds`` inside it.
+
+    Parameters
+    ----------
+    bounds : ndarray of shape (2, dim), optional
+        Lower and upper corners of a trust region; default the whole cube.
 
     Returns
     -------
@@ -120,7 +126,10 @@ def optimize_acquisition(
     values : ndarray of shape (q,) or ()
         Acquisition value(s) at the candidates.
     """
-    bounds = torch.stack([torch.zeros(dim, dtype=DTYPE), torch.ones(dim, dtype=DTYPE)])
+    if bounds is None:
+        box = torch.stack([torch.zeros(dim, dtype=DTYPE), torch.ones(dim, dtype=DTYPE)])
+    else:
+        box = torch.as_tensor(np.asarray(bounds, dtype=float).reshape(2, dim), dtype=DTYPE)
     with torch.random.fork_rng(), warnings.catch_warnings():
         # restarts that stop early are retried by botorch itself; keep the log quiet
         warnings.simplefilter("ignore", RuntimeWarning)
@@ -129,7 +138,7 @@ def optimize_acquisition(
         torch.manual_seed(seed)
         cand, val = optimize_acqf(
             acq,
-            bounds=bounds,
+            bounds=box,
             q=q,
             num_restarts=num_restarts,
             raw_samples=raw_samples,

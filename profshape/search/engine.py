@@ -28,6 +28,13 @@ from .surrogate import (
     fit_objective_model,
     hyperparameters,
 )
+from .trust_region import (
+    GLOBAL,
+    TRUST_REGION,
+    TrustRegionState,
+    trust_region_bounds,
+    trust_region_state,
+)
 
 __all__ = ["MIN_OK_FOR_MODEL", "Observation", "Proposal", "Search"]
 
@@ -111,6 +118,8 @@ class Search:
     acquisition_ : AcquisitionFunction or None
         Acquisition function of the last proposal; call it on tensors of shape
         ``(b, 1, d)`` to map the acquisition surface.
+    trust_region_bounds_ : ndarray of shape (2, d) or None
+        Box the last proposal was optimised over (``None``: the whole cube).
 
     Examples
     --------
@@ -155,6 +164,7 @@ class Search:
         self.objective_model_ = None
         self.feasibility_model_ = None
         self.acquisition_ = None
+        self.trust_region_bounds_: np.ndarray | None = None
         self._warm: dict[str, dict[str, list[float]]] = {}
         self._kinds: dict[int, str] = {}
 
@@ -271,9 +281,11 @@ class Search:
                 extra = [p.u for p in self.pending] + [p.u for p in out]
                 if pending is not None and len(pending):
                     extra += list(np.asarray(pending, dtype=float).reshape(-1, self.dim))
-                cand = self._propose(m, np.array(extra).reshape(-1, self.dim))
+                cand, kind = self._propose(m, np.array(extra).reshape(-1, self.dim))
                 for u in cand:
-                    out.append(self._issue(batch, "proposal", u))
+                    p = self._issue(batch, "proposal", u)
+                    self._kinds[p.trial] = kind
+                    out.append(p)
         return out
 
     def _sobol_next(self) -> np.ndarray:
@@ -326,17 +338,53 @@ class Search:
         self.model_ = combined_model(self.objective_model_, self.feasibility_model_)
         self._train = (u_ok, y_ok)
 
-    def _propose(self, q: int, pending_u: np.ndarray) -> np.ndarray:
+    def trust_region(self) -> TrustRegionState:
+        """Trust-region state now, replayed from the finished trials (see
+        :func:`~profshape.search.trust_region.trust_region_state`)."""
+        return trust_region_state(
+            ((o.trial, o.batch, o.value, o.ok) for o in self._observations.values()),
+            self._kinds, self.dim, self.settings.batch_size,
+        )
+
+    def _next_kind(self) -> str:
+        """Kind of the next model-based batch under the configured strategy."""
+        strategy = self.settings.strategy
+        if strategy == GLOBAL:
+            return GLOBAL
+        if self.trust_region().restart:
+            return GLOBAL
+        if strategy == "hybrid":
+            n_batches = len({self._pending[t].batch if t in self._pending
+                             else self._observations[t].batch for t in self._kinds})
+            if n_batches % 3 == 2:
+                return GLOBAL
+        return TRUST_REGION
+
+    def _bounds(self, kind: str) -> np.ndarray | None:
+        if kind != TRUST_REGION:
+            self.trust_region_bounds_ = None
+            return None
+        kernel = self.objective_model_.covar_module
+        kernel = getattr(kernel, "base_kernel", kernel)
+        ls = kernel.lengthscale.detach().cpu().numpy().reshape(-1)
+        self.trust_region_bounds_ = trust_region_bounds(
+            self.best().u, ls, self.trust_region().length
+        )
+        return self.trust_region_bounds_
+
+    def _propose(self, q: int, pending_u: np.ndarray) -> tuple[np.ndarray, str]:
         with _torch_threads(self.settings.torch_threads):
             self._fit()
             u_ok, y_ok = self._train
+            kind = self._next_kind()
+            bounds = self._bounds(kind)
             seed = derived_seed(self.settings.seed, "proposal", self._next_trial)
             with torch.random.fork_rng():
                 torch.manual_seed(seed)
-                return self._optimize(q, pending_u, u_ok, y_ok, seed)
+                return self._optimize(q, pending_u, u_ok, y_ok, seed, bounds), kind
 
     def _optimize(self, q: int, pending_u: np.ndarray, u_ok: np.ndarray, y_ok: np.ndarray,
-                  seed: int) -> np.ndarray:
+                  seed: int, bounds: np.ndarray | None = None) -> np.ndarray:
         self.acquisition_ = make_acquisition(
             self.model_,
             u_ok,
@@ -354,6 +402,7 @@ class Search:
             num_restarts=self.settings.num_restarts,
             raw_samples=self.settings.raw_samples,
             seed=seed % 2**31,
+            bounds=bounds,
         )
         return cand
 
@@ -397,7 +446,8 @@ class Search:
     # --------------------------------------------------------------- resume
     def restore(self, finished: Sequence[Observation], in_flight: Sequence[Proposal],
                 state: dict[str, int],
-                warm_start: dict[str, dict[str, list[float]]] | None = None) -> None:
+                warm_start: dict[str, dict[str, list[float]]] | None = None,
+                kinds: dict[int, str] | dict[str, str] | None = None) -> None:
         """Rebuild the search from a log (used by resume).
 
         Parameters
@@ -413,6 +463,10 @@ class Search:
             Hyperparameters of the last fit before the interruption
             (:meth:`warm_start`), so the resumed search proposes what the
             uninterrupted one would have.
+        kinds : dict, optional
+            :attr:`proposal_kinds` before the interruption (keys may be strings,
+            as in JSON); the trust-region state is replayed from them and the
+            finished trials. Without it every proposal counts as global.
         """
         self._observations = {o.trial: o for o in finished}
         self._pending = {p.trial: p for p in in_flight}
@@ -422,6 +476,7 @@ class Search:
         self._n_user = int(state["n_user"])
         self._warm = {k: {n: list(map(float, v)) for n, v in d.items()}
                       for k, d in (warm_start or {}).items()}
+        self._kinds = {int(t): str(k) for t, k in (kinds or {}).items()}
 
     def warm_start(self) -> dict[str, dict[str, list[float]]]:
         """Raw GP hyperparameters of the last fit (JSON-ready), for :meth:`restore`."""

@@ -265,6 +265,7 @@ def _sidecar(search: Search, settings: SearchSettings, problem: Any,
         "settings": settings.to_dict(),
         "state": search.state(),
         "warm_start": search.warm_start(),
+        "proposal_kinds": {str(t): k for t, k in sorted(search.proposal_kinds.items())},
         "in_flight": [
             {"trial": p.trial, "batch": p.batch, "source": p.source, "u": p.u.tolist()}
             for p in search.pending
@@ -303,7 +304,8 @@ def _restore(search: Search, log: TrialLog, settings: SearchSettings, problem: A
         u = np.asarray(p["u"], dtype=float)
         in_flight.append(Proposal(int(p["trial"]), int(p["batch"]), str(p["source"]), u,
                                   search._coefficients(u)))
-    search.restore(finished, in_flight, side["state"], side.get("warm_start"))
+    search.restore(finished, in_flight, side["state"], side.get("warm_start"),
+                   side.get("proposal_kinds"))
 
 
 def run_search(
