@@ -288,7 +288,7 @@ def sample_posterior(
             good = np.array([r.ok for r in runs], dtype=bool)
             new_ll = np.array([r.log_likelihood for r in runs])[good]
             disagree = _disagree_fraction(surrogate, unit_samples[pick][good], new_ll, settings)
-            failed = 1.0 - good.mean()
+            failed = float(1.0 - good.mean()) if len(good) else 1.0
             refine_log.append({"round": round_ + 1, "n_runs": len(runs), "n_ok": int(good.sum()),
                                "disagree_fraction": disagree, "failed_fraction": failed})
             u_train = np.vstack([u_train, unit_samples[pick][good]])
