@@ -2,10 +2,9 @@
 
 from __future__ import annotations
 
-import functools
 import math
 import time
-from collections.abc import Callable, Mapping
+from collections.abc import Mapping
 from concurrent.futures import Executor
 from dataclasses import dataclass, field
 from typing import Any
@@ -23,10 +22,6 @@ __all__ = ["CalibrationProblem", "TrialOutcome"]
 
 SCALE_PREFIX = "log10_scale__"
 DISCREPANCY_NAME = "log10_discrepancy_sigma_m_s"
-
-
-def _scaled(function: Callable[[np.ndarray], np.ndarray], factor: float, z: np.ndarray) -> np.ndarray:
-    return factor * np.asarray(function(z), dtype=float)
 
 
 @dataclass(frozen=True, eq=False)
@@ -216,13 +211,7 @@ class CalibrationProblem:
         if not self.free_scale_per_point:
             return base
         idx = self.names.index(f"{SCALE_PREFIX}{label}")
-        factor = 10.0 ** c[idx]
-        return AnomalousProfile(
-            kind=base.kind,
-            function=functools.partial(_scaled, base.function, factor),
-            coefficients={**base.coefficients, f"{SCALE_PREFIX}{label}": float(c[idx])},
-            family=base.family,
-        )
+        return base.scaled(10.0 ** c[idx], **{f"{SCALE_PREFIX}{label}": float(c[idx])})
 
     def discrepancy_sigma_m_s(self, coefficients: Any) -> float:
         """The ion-velocity discrepancy sigma [m/s] for these coefficients."""

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Literal
@@ -59,9 +60,23 @@ class AnomalousProfile:
         """Profile values (coefficient or 1/s, per :attr:`kind`) at ``z_m`` [m]."""
         return np.asarray(self.function(np.asarray(z_m, dtype=float)), dtype=float)
 
+    def scaled(self, factor: float, **coefficients: float) -> AnomalousProfile:
+        """This profile times ``factor`` (picklable), with extra coefficients noted."""
+        return AnomalousProfile(
+            kind=self.kind,
+            function=functools.partial(_scaled, self.function, float(factor)),
+            coefficients={**self.coefficients, **coefficients},
+            family=self.family,
+        )
+
     def frequency(self, z_m: np.ndarray, magnetic_field_T: np.ndarray) -> np.ndarray:
         """Anomalous collision frequency [1/s] at ``z_m`` given the field there [T]."""
         values = self(z_m)
         if self.kind == "bohm":
             return values * electron_gyrofrequency(magnetic_field_T)
         return values
+
+
+def _scaled(function: Callable[[np.ndarray], np.ndarray], factor: float, z: np.ndarray) -> np.ndarray:
+    """Module-level (picklable) product of a profile function and a factor."""
+    return factor * np.asarray(function(z), dtype=float)

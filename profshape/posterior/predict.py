@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import functools
 from collections.abc import Sequence
 from typing import Any
 
@@ -46,10 +45,6 @@ def extrapolation_reason(problem: Any, point: OperatingPoint) -> str:
     return "; ".join(reasons)
 
 
-def _scaled(function: Any, factor: float, z: np.ndarray) -> np.ndarray:
-    return factor * np.asarray(function(z), dtype=float)
-
-
 def _profile_at(problem: Any, coeffs: np.ndarray, point: OperatingPoint,
                 in_data: bool) -> AnomalousProfile:
     if in_data:
@@ -60,10 +55,7 @@ def _profile_at(problem: Any, coeffs: np.ndarray, point: OperatingPoint,
     if not scale_idx:
         return base
     # An uncalibrated point gets the draw's mean per-point log10 scale.
-    factor = 10.0 ** float(np.mean(coeffs[scale_idx]))
-    return AnomalousProfile(kind=base.kind, function=functools.partial(_scaled, base.function,
-                                                                       factor),
-                            coefficients=base.coefficients, family=base.family)
+    return base.scaled(10.0 ** float(np.mean(coeffs[scale_idx])))
 
 
 def _run_point(problem: Any, profile: AnomalousProfile, point: OperatingPoint) -> DrawRun:
