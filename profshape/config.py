@@ -63,6 +63,7 @@ _SCHEMA: dict[str, Any] = {
         "seed": ((int,), False, 0),
         "num_restarts": ((int,), False, None),
         "raw_samples": ((int,), False, None),
+        "strategy": ((str,), False, None),
     },
     "workers": {
         "n_workers": ((int,), False, 1),
