@@ -1,5 +1,5 @@
 """profshape: Bayesian calibration of the anomalous electron-transport profile
-of Hall-thruster discharge models against measured ion-velocity data.
+of Hall-effect-thruster discharge models against measured ion-velocity data.
 
 The heavy parts (torch, botorch, numba) are imported on first use, so that
 ``import profshape`` stays quick. Main entry points:

@@ -96,7 +96,7 @@ def _print_summary(summary: dict, out: Path) -> None:
 def _parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="profshape",
-        description="Calibrate the anomalous electron-transport profile of a Hall-thruster "
+        description="Calibrate the anomalous electron-transport profile of a Hall-effect-thruster "
                     "discharge model against measured ion velocities by Bayesian optimisation.",
     )
     parser.add_argument("--version", action="version", version=f"profshape {__version__}")

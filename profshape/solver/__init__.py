@@ -1,4 +1,4 @@
-"""The built-in forward model: a 1-D axial quasi-neutral fluid Hall-thruster solver.
+"""The built-in forward model: a 1-D axial quasi-neutral fluid Hall-effect-thruster solver.
 
 See :mod:`profshape.solver.model` for the equations, boundary conditions
 and numerics, :mod:`profshape.solver.rates` for the rate-coefficient

@@ -14,7 +14,7 @@ __all__ = ["Device", "demo_device", "demo_operating_points"]
 
 @dataclass(frozen=True)
 class Device:
-    """Annular Hall-thruster channel and the axial domain of the solver.
+    """Annular Hall-effect-thruster channel and the axial domain of the solver.
 
     Parameters
     ----------

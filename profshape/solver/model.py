@@ -41,7 +41,7 @@ Electron energy (T_e in eV)::
 
 with kappa = 5/2 n_e T_e mu_perp. Wall losses inside the channel follow the
 floating-sheath model with secondary electron emission of Hobbs and Wesson
-(Plasma Physics 9, 85, 1967), as used for Hall-thruster channels by e.g.
+(Plasma Physics 9, 85, 1967), as used for Hall-effect-thruster channels by e.g.
 Barral et al. (Phys. Plasmas 10, 4137, 2003): ions reach the two walls at the
 Bohm speed with the pre-sheath density 0.61 n_e, so the electron collection
 frequency is nu_wall = 1.22 c_s / ((r_o - r_i)(1 - sigma)), and each
