@@ -24,6 +24,7 @@ Usage::
     python benchmarks/search_efficiency.py --quick         # 2 seeds, budget 40
     python benchmarks/search_efficiency.py --overhead-only
     python benchmarks/search_efficiency.py --quick --strategies --no-overhead
+    python benchmarks/search_efficiency.py --seeds 3 --budget 120 --strategies trust_region
 """
 
 from __future__ import annotations
@@ -178,6 +179,19 @@ def overhead(d: int, n: int, reps: int = 3) -> tuple[float, float, float]:
     return float(np.median(wall)), float(np.median(cpu)), cold
 
 
+def _runs(n: float, budget: int) -> str:
+    """Runs to target, or ``>budget`` when not reached."""
+    return f">{budget}" if n > budget else f"{n:g}"
+
+
+def _ratio(num: float, den: float, capped: int) -> str:
+    """``num / den`` marked as a bound when either median is capped at ``capped``."""
+    if num >= capped and den >= capped:
+        return "?"
+    mark = ">" if num >= capped else "<" if den >= capped else ""
+    return f"{mark}{num / den:.2f}"
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--seeds", type=int, default=5)
@@ -187,8 +201,9 @@ def main() -> None:
     ap.add_argument("--jobs", type=int, default=2, help="processes for the (method, seed) runs")
     ap.add_argument("--quick", action="store_true", help="2 seeds, budget 40")
     ap.add_argument("--overhead-only", action="store_true")
-    ap.add_argument("--strategies", action="store_true",
-                    help="also run the search with each proposal strategy forced")
+    ap.add_argument("--strategies", nargs="*", default=None, metavar="NAME",
+                    help="also run the search with each proposal strategy forced "
+                    "(no names: global, trust_region and hybrid)")
     ap.add_argument("--no-overhead", action="store_true")
     ap.add_argument("--only", default="", help="run only methods whose name contains this")
     args = ap.parse_args()
@@ -196,7 +211,10 @@ def main() -> None:
         seeds = 2 if args.quick else args.seeds
         budget = 40 if args.quick else args.budget
         t0 = time.perf_counter()
-        methods = {**METHODS, **(STRATEGY_METHODS if args.strategies else {})}
+        forced = {} if args.strategies is None else {
+            k: v for k, v in STRATEGY_METHODS.items()
+            if not args.strategies or k.split("=", 1)[1] in args.strategies}
+        methods = {**METHODS, **forced}
         methods = {k: v for k, v in methods.items() if args.only in k or k == BO}
         jobs = [(m, s) for s in range(seeds) for m in methods]
         with ProcessPoolExecutor(args.jobs, mp_context=multiprocessing.get_context("spawn")) as ex:
@@ -209,13 +227,16 @@ def main() -> None:
                          default=float("nan"))
         print(f"forward runs to reduced chi2 <= {args.target} (median of {seeds} seeds, "
               f"budget {budget}, n_cells {args.n_cells}; budget + 1 = not reached)")
-        print(f"  {'method':<24}{'median':>7}{'ratio':>8}   runs per seed; best reduced chi2 "
+        print(f"  {'method':<28}{'median':>7}{'ratio':>8}   runs per seed; best reduced chi2 "
               "per seed")
+        capped = budget + 1
         for m, v in res.items():
-            runs = [r[2] for r in v]
+            runs = "[" + ", ".join(_runs(r[2], budget) for r in v) + "]"
             bests = " ".join(f"{r[3]:.3g}" for r in v)
-            print(f"  {m:<24}{med[m]:>7.1f}{med[m] / bo:>8.2f}   {runs}; {bests}")
-        print(f"  best other / this search: {best_other / bo:.2f}x (goal >= 3x); "
+            print(f"  {m:<28}{_runs(med[m], budget):>7}{_ratio(med[m], bo, capped):>8}"
+                  f"   {runs}; {bests}")
+        print(f"  best other / this search: {_ratio(best_other, bo, capped)}x (goal >= 3x; "
+              f"'>' = a lower bound, '<' = an upper bound, '?' = both capped); "
               f"wall {time.perf_counter() - t0:.0f} s")
     if args.no_overhead:
         return

@@ -351,6 +351,9 @@ class Search:
         strategy = self.settings.strategy
         if strategy == GLOBAL:
             return GLOBAL
+        if (TRUST_REGION not in self._kinds.values()
+                and len(self._kinds) < self.settings.resolved_trust_region_warmup(self.dim)):
+            return GLOBAL  # warm-up: global proposals before the region starts
         if self.trust_region().restart:
             return GLOBAL
         if strategy == "hybrid":

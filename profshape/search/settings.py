@@ -96,6 +96,13 @@ class SearchSettings:
         lower misfits at a budget of 40 to 60 trials, but on a 2-coefficient
         calibration with 20 trials it settles in a secondary basin that the
         global search avoids, so ``"global"`` stays the default.
+    trust_region_warmup : int or None, default=None
+        Model-based proposals over the whole cube (expected improvement, as
+        ``"global"``) after the initial design and before the first
+        trust-region proposal, under ``"trust_region"`` and ``"hybrid"``;
+        ``None`` means ``2 * d``. The region then starts around a best trial
+        that the global search has already looked for, rather than around the
+        best point of the space-filling design.
     torch_threads : int or None, default=1
         Torch intra-op threads while the search fits and proposes (restored
         afterwards); ``None`` leaves torch's setting alone. One thread is
@@ -122,6 +129,7 @@ class SearchSettings:
     max_fit_attempts: int = 3
     torch_threads: int | None = 1
     strategy: Strategy = "global"
+    trust_region_warmup: int | None = None
 
     def __post_init__(self) -> None:
         _int_field("budget", self.budget, 1)
@@ -135,6 +143,7 @@ class SearchSettings:
         _int_field("n_workers", self.n_workers, 1, allow_none=True)
         _int_field("max_fit_attempts", self.max_fit_attempts, 1)
         _int_field("torch_threads", self.torch_threads, 1, allow_none=True)
+        _int_field("trust_region_warmup", self.trust_region_warmup, 0, allow_none=True)
         if self.raw_samples < self.num_restarts:
             raise ConfigError(
                 f"SearchSettings.raw_samples ({self.raw_samples}) must be >= num_restarts "
@@ -184,6 +193,11 @@ class SearchSettings:
     def resolved_n_initial(self, dim: int) -> int:
         """Size of the Sobol initial design for a ``dim``-dimensional space."""
         return self.n_initial if self.n_initial is not None else 2 * dim + 1
+
+    def resolved_trust_region_warmup(self, dim: int) -> int:
+        """Global proposals before the first trust-region one (``2 * dim`` if unset)."""
+        w = self.trust_region_warmup
+        return w if w is not None else 2 * dim
 
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready form (initial points as lists)."""

@@ -13,7 +13,10 @@ before it by more than ``1e-3`` of its magnitude (the constants of the paper).
 When ``L`` falls below ``0.5**7`` the region has collapsed: TuRBO restarts
 with a fresh design; here the next batch is a global one (expected
 improvement over the whole cube) and the region starts again at ``0.8``
-around the best trial.
+around the best trial. The region starts after a warm-up of global batches
+(``SearchSettings.trust_region_warmup``, ``2 d`` proposals by default, our
+choice) so that it is centred on a best trial the model-based search has
+already looked for; warm-up batches leave the counters alone.
 
 The state is a pure function of the finished trials, their batches and the
 kind of each proposal batch, so it is recomputed, never stored: a resumed

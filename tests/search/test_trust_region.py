@@ -83,9 +83,10 @@ def test_box_follows_the_lengthscales_and_stays_in_the_cube():
     assert np.all(b >= 0) and np.all(b <= 1) and b[0, 0] == 0.0 and b[1, 1] == 1.0
 
 
-def _drive(strategy, budget=14, seed=1):
+def _drive(strategy, budget=14, seed=1, warmup=0):
     space = SearchSpace(["x", "y"], [[0, 1], [0, 1]])
     s = Search(space, SearchSettings(budget=budget, n_initial=5, seed=seed, strategy=strategy,
+                                     trust_region_warmup=warmup,
                                      objective_transform="log", num_restarts=2,
                                      raw_samples=32, progress=False))
     boxes = []
@@ -113,6 +114,20 @@ def test_engine_proposes_inside_the_box_and_records_the_kind():
     assert {g.kind_of(o.trial) for o in g.observations if o.source == "proposal"} == {GLOBAL}
 
 
+def test_warmup_proposals_are_global_then_the_region_starts():
+    # default warm-up 2 * d = 4 global proposals after the design (design choice, no source)
+    assert SearchSettings(budget=3).resolved_trust_region_warmup(2) == 4
+    s, _ = _drive("trust_region", budget=12, warmup=None)
+    kinds = [s.kind_of(o.trial) for o in s.observations if o.source == "proposal"]
+    assert kinds == [GLOBAL] * 4 + [TRUST_REGION] * 3
+    # the warm-up batches leave the region's counters untouched: it starts at L_init
+    obs = [(o.trial, o.batch, o.value, o.ok) for o in s.observations[:9]]
+    st = trust_region_state(obs, s.proposal_kinds, dim=2, q=1)
+    assert (st.length, st.successes, st.failures) == (LENGTH_INIT, 0, 0)
+    with pytest.raises(ConfigError, match=r"SearchSettings.trust_region_warmup must be >= 0"):
+        SearchSettings(budget=3, trust_region_warmup=-1)
+
+
 def test_restored_search_proposes_the_same_trust_region_trial():
     a, _ = _drive("trust_region", budget=10)
     settings = a.settings
@@ -126,6 +141,18 @@ def test_restored_search_proposes_the_same_trust_region_trial():
               a.warm_start(), {t: k for t, k in a.proposal_kinds.items() if t < 8})
     assert b.trust_region() == c.trust_region()
     np.testing.assert_array_equal(b.ask()[0].u, c.ask()[0].u)
+    # interrupted inside the warm-up: the resumed search finishes it and then starts the
+    # region exactly as the uninterrupted one did
+    a, _ = _drive("trust_region", budget=11, warmup=None)
+    r = Search(a.space, a.settings)
+    r.restore(a.observations[:7], [], {"next_trial": 7, "next_batch": 7, "n_sobol": 5,
+                                       "n_user": 0},
+              a.warm_start(), {str(t): k for t, k in a.proposal_kinds.items() if t < 7})
+    for t in range(7, 11):
+        (p,) = r.ask()
+        assert r.kind_of(p.trial) == a.kind_of(t)
+        np.testing.assert_allclose(p.u, a.observations[t].u, atol=1e-6)
+        r.tell(p.trial, a.observations[t].value)
 
 
 def test_strategy_is_validated():
