@@ -38,21 +38,35 @@ import numpy as np
 from scipy.optimize import differential_evolution, minimize
 from scipy.stats import qmc
 
-from profshape.data import DataSet, IonVelocityProfile, OperatingPointData
+from profshape.data import DataSet, IonVelocityProfile, OperatingPointData, load_dataset
+from profshape.demo import demo_data_folder
 from profshape.forward.builtin import BuiltinSolverModel
+from profshape.likelihood import LikelihoodSettings
 from profshape.problem import CalibrationProblem
 from profshape.search import Search, SearchSettings, SearchSpace
 from profshape.shapes import get_family
 from profshape.solver import SolverSettings, demo_device, demo_operating_points
 
 TRUTH = np.array([-2.6, -1.0, 0.026, 0.004])
-_PROBLEMS: dict[int, CalibrationProblem] = {}
+_PROBLEMS: dict[tuple[int, str], CalibrationProblem] = {}
 
 
-def make_problem(n_cells: int) -> CalibrationProblem:
-    """The synthetic-truth problem (cached per process)."""
-    if n_cells in _PROBLEMS:
-        return _PROBLEMS[n_cells]
+def make_problem(n_cells: int, kind: str = "synthetic") -> CalibrationProblem:
+    """The synthetic-truth problem, or the bundled demo's (cached per process).
+
+    ``kind="demo"``: the demo data set (two operating points, LIF profiles,
+    discharge currents and a thrust, made on a twice finer grid) with the demo
+    calibration file's 150 m/s model discrepancy.
+    """
+    if (n_cells, kind) in _PROBLEMS:
+        return _PROBLEMS[(n_cells, kind)]
+    if kind == "demo":
+        family = get_family("smooth_step", channel_length_m=demo_device().channel_length_m)
+        model = BuiltinSolverModel(demo_device(), SolverSettings(n_cells=n_cells))
+        problem = CalibrationProblem(family, load_dataset(demo_data_folder()), model,
+                                     LikelihoodSettings(discrepancy_sigma_m_s=150.0))
+        _PROBLEMS[(n_cells, kind)] = problem
+        return problem
     family = get_family("smooth_step", channel_length_m=0.024)
     model = BuiltinSolverModel(demo_device(), SolverSettings(n_cells=n_cells))
     point = demo_operating_points()[0]
@@ -63,7 +77,7 @@ def make_problem(n_cells: int) -> CalibrationProblem:
     v = np.interp(z, p.z_m, p.ion_velocity_m_s) + sigma * rng.normal(size=z.size)
     problem = CalibrationProblem(family, DataSet([OperatingPointData(point, IonVelocityProfile(
         z, v, sigma))]), model)
-    _PROBLEMS[n_cells] = problem
+    _PROBLEMS[(n_cells, kind)] = problem
     return problem
 
 
@@ -144,9 +158,9 @@ STRATEGY_METHODS = {f"BO strategy={k}": _bo_with(k) for k in ("global", "trust_r
 ALL_METHODS = {**METHODS, **STRATEGY_METHODS}
 
 
-def _task(method: str, seed: int, budget: int, target: float, n_cells: int
-          ) -> tuple[str, int, int, float, float]:
-    problem = make_problem(n_cells)
+def _task(method: str, seed: int, budget: int, target: float, n_cells: int,
+          kind: str = "synthetic") -> tuple[str, int, int, float, float]:
+    problem = make_problem(n_cells, kind)
     t0 = time.perf_counter()
     c = ALL_METHODS[method](problem, budget, seed, target)
     finite = [v for v in c.history if np.isfinite(v)]
@@ -198,6 +212,8 @@ def main() -> None:
     ap.add_argument("--budget", type=int, default=60)
     ap.add_argument("--target", type=float, default=1.5)
     ap.add_argument("--n-cells", type=int, default=80)
+    ap.add_argument("--problem", choices=("synthetic", "demo"), default="synthetic",
+                    help="the one-point synthetic truth, or the bundled demo data set")
     ap.add_argument("--jobs", type=int, default=2, help="processes for the (method, seed) runs")
     ap.add_argument("--quick", action="store_true", help="2 seeds, budget 40")
     ap.add_argument("--overhead-only", action="store_true")
@@ -218,13 +234,15 @@ def main() -> None:
         methods = {k: v for k, v in methods.items() if args.only in k or k == BO}
         jobs = [(m, s) for s in range(seeds) for m in methods]
         with ProcessPoolExecutor(args.jobs, mp_context=multiprocessing.get_context("spawn")) as ex:
-            futs = [ex.submit(_task, m, s, budget, args.target, args.n_cells) for m, s in jobs]
+            futs = [ex.submit(_task, m, s, budget, args.target, args.n_cells, args.problem)
+                    for m, s in jobs]
             out = [f.result() for f in futs]
         res = {m: [r for r in out if r[0] == m] for m in methods}
         med = {m: float(np.median([r[2] for r in v])) for m, v in res.items()}
         bo = med[BO]
         best_other = min((v for m, v in med.items() if m in METHODS and m != BO),
                          default=float("nan"))
+        print(f"problem: {args.problem}")
         print(f"forward runs to reduced chi2 <= {args.target} (median of {seeds} seeds, "
               f"budget {budget}, n_cells {args.n_cells}; budget + 1 = not reached)")
         print(f"  {'method':<28}{'median':>7}{'ratio':>8}   runs per seed; best reduced chi2 "

@@ -64,6 +64,7 @@ _SCHEMA: dict[str, Any] = {
         "num_restarts": ((int,), False, None),
         "raw_samples": ((int,), False, None),
         "strategy": ((str,), False, None),
+        "trust_region_warmup": ((int,), False, None),
     },
     "workers": {
         "n_workers": ((int,), False, 1),
