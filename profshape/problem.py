@@ -17,6 +17,7 @@ from .forward.base import ForwardModel, Prediction
 from .likelihood import LikelihoodSettings, Misfit, evaluate_misfit
 from .profile import AnomalousProfile
 from .shapes import Parameter, ShapeFamily
+from .shapes._base import check_in_bounds
 
 __all__ = ["CalibrationProblem", "TrialOutcome"]
 
@@ -182,18 +183,7 @@ class CalibrationProblem:
         d = self.family.n_coefficients
         shape_part = self.family.validate(c[:d])
         if self._extra:
-            b = self.bounds[d:]
-            rest = c[d:]
-            for i, p in enumerate(self._extra):
-                if not math.isfinite(rest[i]):
-                    raise InputDataError(f"coefficient {p.name!r} is {float(rest[i])!r}; give a number.")
-                span = b[i, 1] - b[i, 0]
-                if rest[i] < b[i, 0] - 1e-9 * span or rest[i] > b[i, 1] + 1e-9 * span:
-                    raise InputDataError(
-                        f"coefficient {p.name!r} = {float(rest[i])!r} is outside its bounds "
-                        f"[{float(b[i, 0])!r}, {float(b[i, 1])!r}] [{p.unit}]."
-                    )
-            rest = np.clip(rest, b[:, 0], b[:, 1])
+            rest = check_in_bounds(c[d:], self._extra, "calibration problem")
             return np.concatenate([shape_part, rest])
         return shape_part
 

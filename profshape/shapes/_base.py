@@ -16,7 +16,7 @@ from ..exceptions import InputDataError
 from ..profile import AnomalousProfile, ProfileKind
 from ._xp import namespace_of, to_backend
 
-__all__ = ["Parameter", "ShapeFamily"]
+__all__ = ["Parameter", "ShapeFamily", "check_in_bounds"]
 
 #: Relative slack allowed on bounds before a coefficient counts as outside them.
 _BOUND_SLACK = 1e-9
@@ -57,6 +57,41 @@ class Parameter:
             )
         object.__setattr__(self, "lower", lo)
         object.__setattr__(self, "upper", hi)
+
+
+def check_in_bounds(c: np.ndarray, parameters: Sequence[Parameter], owner: str) -> np.ndarray:
+    """Check coefficients of shape (d,) or (n, d) are finite and within bounds.
+
+    Values within a tiny relative slack of a bound are clipped onto it.
+
+    Raises
+    ------
+    InputDataError
+        Naming ``owner``, the parameter, the value (and row) and the bounds.
+    """
+    names = [p.name for p in parameters]
+    b = np.array([[p.lower, p.upper] for p in parameters], dtype=float)
+    c2 = np.atleast_2d(c)
+    bad = ~np.isfinite(c2)
+    if bad.any():
+        row, col = np.argwhere(bad)[0]
+        raise InputDataError(
+            f"{owner}: coefficient {names[col]!r} is {float(c2[row, col])!r}"
+            + (f" (row {row})" if c.ndim == 2 else "")
+            + "; coefficients must be finite numbers."
+        )
+    slack = _BOUND_SLACK * (b[:, 1] - b[:, 0])
+    outside = (c2 < b[:, 0] - slack) | (c2 > b[:, 1] + slack)
+    if outside.any():
+        row, col = np.argwhere(outside)[0]
+        raise InputDataError(
+            f"{owner}: coefficient {names[col]!r} = {float(c2[row, col])!r}"
+            + (f" (row {row})" if c.ndim == 2 else "")
+            + f" is outside its bounds [{float(b[col, 0])!r}, {float(b[col, 1])!r}] "
+            f"[{parameters[col].unit}]; give a value inside them or widen the bounds."
+        )
+    c2 = np.clip(c2, b[:, 0], b[:, 1])
+    return c2 if c.ndim == 2 else c2[0]
 
 
 class ShapeFamily(ABC):
@@ -182,29 +217,7 @@ class ShapeFamily(ABC):
                 f"(n, {self.n_coefficients}) for parameters {list(self.names)}; got shape "
                 f"{c.shape}."
             )
-        c2 = np.atleast_2d(c)
-        bad = ~np.isfinite(c2)
-        if bad.any():
-            row, col = np.argwhere(bad)[0]
-            raise InputDataError(
-                f"{self.name}: coefficient {self.names[col]!r} is {float(c2[row, col])!r}"
-                + (f" (row {row})" if c.ndim == 2 else "")
-                + "; coefficients must be finite numbers."
-            )
-        b = self.bounds
-        slack = _BOUND_SLACK * (b[:, 1] - b[:, 0])
-        low = c2 < b[:, 0] - slack
-        high = c2 > b[:, 1] + slack
-        if (low | high).any():
-            row, col = np.argwhere(low | high)[0]
-            raise InputDataError(
-                f"{self.name}: coefficient {self.names[col]!r} = {float(c2[row, col])!r}"
-                + (f" (row {row})" if c.ndim == 2 else "")
-                + f" is outside its bounds [{float(b[col, 0])!r}, {float(b[col, 1])!r}] "
-                f"[{self.units[col]}]; give a value inside them or widen the bounds."
-            )
-        c2 = np.clip(c2, b[:, 0], b[:, 1])
-        return c2 if c.ndim == 2 else c2[0]
+        return check_in_bounds(c, self._parameters, self.name)
 
     def coefficients_from_dict(self, values: Mapping[str, float]) -> np.ndarray:
         """Coefficient vector from a name → value mapping (all names required)."""

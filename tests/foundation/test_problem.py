@@ -82,3 +82,14 @@ def test_bad_coefficients_and_domain():
         CalibrationProblem(SmoothStep(), DataSet(pts), _Linear())
     with pytest.raises(InputDataError, match="CallableModel"):
         CalibrationProblem(SmoothStep(), DataSet(pts), lambda p, q: None)
+
+
+def test_extra_parameters_checked_like_family_ones():
+    pr = _problem(free_scale_per_point=True)
+    c = pr.from_unit(np.full(pr.dim, 0.5))
+    c[4] = 3.0  # log10_scale__a bounds are [-1, 1]
+    with pytest.raises(InputDataError, match=r"'log10_scale__a' = 3.0 is outside its bounds \[-1.0, 1.0\]"):
+        pr.validate(c)
+    c[4] = np.nan
+    with pytest.raises(InputDataError, match="'log10_scale__a' is nan"):
+        pr.validate(c)
