@@ -1,10 +1,19 @@
 """The trial log: one parquet table per search, one row per finished trial.
 
-The table is rewritten after every finished trial through a temporary file in
-the same folder, ``fsync`` and :func:`os.replace`, so an interrupted write
-never damages what was there and :func:`pandas.read_parquet` can read it at
-any moment. A JSON sidecar (``<log name>.json``) beside it holds the search
-settings, the search counters and the trials in flight, written the same way;
+Every finished trial is first appended as one JSON line to a journal beside
+the table (``<log name>.journal``, flushed and ``fsync``-ed: one small write
+per trial). The journal is compacted into the parquet table, rewritten
+through a temporary file in the same folder, ``fsync`` and
+:func:`os.replace`, after the first trial, every :data:`COMPACT_EVERY` trials
+or :data:`COMPACT_INTERVAL_S` seconds, and when the search ends or is
+interrupted; so an interrupted write never damages what was there, and
+:func:`pandas.read_parquet` can read the table at any moment (it may lag the
+journal by a few trials while the search runs). :func:`read_trials` reads
+both: the table, then the journal's rows on top (a later row of a trial
+replaces an earlier one; a line cut by a kill at the end is ignored).
+
+A JSON sidecar (``<log name>.json``) beside it holds the search settings, the
+search counters and the trials in flight, written atomically;
 :func:`~profshape.search.run_search` uses it to resume.
 
 Columns
@@ -54,7 +63,9 @@ import contextlib
 import json
 import math
 import os
+import re
 import tempfile
+import time
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
@@ -67,12 +78,21 @@ from .exceptions import InputDataError
 
 __all__ = [
     "BASE_COLUMNS",
+    "COMPACT_EVERY",
+    "COMPACT_INTERVAL_S",
     "TrialLog",
     "atomic_write_bytes",
+    "journal_path",
     "read_predictions",
     "read_trials",
+    "reason_signature",
     "sidecar_path",
 ]
+
+#: Journal rows after which the parquet table is rewritten.
+COMPACT_EVERY = 16
+#: Seconds after which the parquet table is rewritten at the next trial [s].
+COMPACT_INTERVAL_S = 30.0
 
 BASE_COLUMNS = (
     "trial", "batch", "source", "status", "reduced_chi2", "chi2", "n_data", "log_likelihood",
@@ -86,6 +106,32 @@ def sidecar_path(log_path: str | os.PathLike[str]) -> Path:
     """Path of the JSON sidecar of a trial log (``<log name>.json``)."""
     p = Path(log_path)
     return p.with_name(p.name + ".json")
+
+
+def journal_path(log_path: str | os.PathLike[str]) -> Path:
+    """Path of the append-only journal of a trial log (``<log name>.journal``)."""
+    p = Path(log_path)
+    return p.with_name(p.name + ".journal")
+
+
+_SIGNATURE_SUBS = (
+    (re.compile(r"work folder \S+"), "work folder *"),
+    (re.compile(r"\S*run-[^\s'\"/]*-[0-9a-f]{12}\S*"), "*"),
+    (re.compile(r"0x[0-9a-fA-F]+"), "0x*"),
+    (re.compile(r"\b[0-9a-f]{8,}\b"), "*"),
+    (re.compile(r"\b(pid|wall|wall_time_s)[= ]\S+"), r"\1 *"),
+)
+
+
+def reason_signature(reason: str) -> str:
+    """A failure reason without what changes from run to run (work folders, ids).
+
+    Two trials whose reasons have the same signature failed the same way.
+    """
+    text = str(reason)
+    for pattern, repl in _SIGNATURE_SUBS:
+        text = pattern.sub(repl, text)
+    return text.strip()
 
 
 def _fsync_dir(folder: Path) -> None:
@@ -140,23 +186,86 @@ def _write_json(path: Path, data: Mapping[str, Any]) -> None:
     atomic_write_bytes(path, writer)
 
 
+def _journal_default(obj: Any) -> Any:
+    if isinstance(obj, (pd.Timestamp,)) or hasattr(obj, "isoformat"):
+        return obj.isoformat()
+    return _json_default(obj)
+
+
+def _read_journal(path: Path) -> list[dict[str, Any]]:
+    """Rows of a journal; a last line cut by a kill is ignored."""
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        return []
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputDataError(f"trial-log journal {str(path)!r} is unreadable ({exc}); move it "
+                             "aside to resume from the parquet table alone.") from None
+    lines = text.split("\n")
+    rows = []
+    for n, line in enumerate(lines, start=1):
+        if not line.strip():
+            continue
+        try:
+            row = json.loads(line)
+        except ValueError:
+            if n == len(lines):  # no newline after it: a write cut short
+                break
+            raise InputDataError(
+                f"trial-log journal {str(path)!r}: line {n} is not a JSON row; the file is "
+                "damaged. Move it aside to resume from the parquet table alone."
+            ) from None
+        if not isinstance(row, dict) or "trial" not in row:
+            raise InputDataError(f"trial-log journal {str(path)!r}: line {n} is not a trial row.")
+        rows.append(row)
+    return rows
+
+
+def _normalise(df: pd.DataFrame) -> pd.DataFrame:
+    """The log's column types (ints, UTC times, strings)."""
+    for col in ("trial", "batch", "n_data", "seed"):
+        if col in df.columns:
+            df[col] = df[col].astype("int64")
+    for col in ("started_at", "finished_at"):
+        if col in df.columns:
+            df[col] = pd.to_datetime(df[col], utc=True, format="ISO8601")
+    for col in ("source", "status", "error", "version", "predictions"):
+        if col in df.columns:
+            df[col] = df[col].fillna("").astype(str)
+    return df
+
+
 def read_trials(path: str | os.PathLike[str]) -> pd.DataFrame:
-    """Read a trial log, sorted by trial index.
+    """Read a trial log (table and journal), sorted by trial index.
 
     Raises
     ------
     InputDataError
-        If the file is missing or is not a trial log.
+        If the file is missing, damaged or is not a trial log.
     """
     p = Path(path)
-    if not p.is_file():
+    journal = _read_journal(journal_path(p))
+    if not p.is_file() and not journal:
         raise InputDataError(f"trial log {str(p)!r} does not exist; check the path.")
-    df = pd.read_parquet(p)
+    frames = []
+    if p.is_file():
+        try:
+            frames.append(pd.read_parquet(p))
+        except Exception as exc:  # truncated or foreign file: pyarrow raises several kinds
+            raise InputDataError(
+                f"trial log {str(p)!r} is not a readable parquet table ({type(exc).__name__}: "
+                f"{exc}); it may be truncated. Restore it from a backup or start a new --out."
+            ) from None
+    if journal:
+        frames.append(_normalise(pd.DataFrame.from_records(journal)))
+    df = frames[0] if len(frames) == 1 else pd.concat(frames, ignore_index=True)
     missing = [c for c in BASE_COLUMNS if c not in df.columns]
     if missing:
         raise InputDataError(
             f"{str(p)!r} is not a profshape trial log: columns {missing} are missing."
         )
+    if len(frames) > 1:
+        df = df.drop_duplicates("trial", keep="last")
     return df.sort_values("trial", kind="stable").reset_index(drop=True)
 
 
@@ -181,7 +290,7 @@ def read_predictions(row: Mapping[str, Any] | pd.Series) -> dict[str, dict[str, 
 
 
 class TrialLog:
-    """Append-only parquet trial log with an atomic JSON sidecar.
+    """Append-only trial log (journal compacted to parquet) with an atomic JSON sidecar.
 
     Parameters
     ----------
@@ -202,9 +311,13 @@ class TrialLog:
     ) -> None:
         self.path = Path(path)
         self.sidecar = sidecar_path(self.path)
+        self.journal = journal_path(self.path)
         self.parameter_names = tuple(parameter_names)
         self.labels = tuple(labels)
         self._rows: list[dict[str, Any]] = []
+        self._fh: Any = None
+        self._pending = 0
+        self._last_compact = time.monotonic()
 
     # ---------------------------------------------------------------- rows
     @property
@@ -222,12 +335,51 @@ class TrialLog:
                 "written by a search over other parameters. Use a new log path."
             )
         self._rows = df.to_dict(orient="records")
+        if self.journal.exists() and self.journal.stat().st_size:
+            self.compact()  # fold the journal in, so the next append starts it afresh
         return df
 
+    def drop_trials(self, trials: Any) -> None:
+        """Forget rows (to be run again); the table drops them at the next compaction."""
+        drop = {int(t) for t in trials}
+        self._rows = [r for r in self._rows if int(r["trial"]) not in drop]
+
     def append(self, row: Mapping[str, Any]) -> None:
-        """Add one finished trial and rewrite the table atomically."""
-        self._rows.append(dict(row))
+        """Add one finished trial: one fsync-ed journal line; compact now and then."""
+        row = dict(row)
+        self._rows.append(row)
+        line = json.dumps(row, default=_journal_default, allow_nan=True)
+        if self._fh is None:  # the journal holds nothing the table lacks (see load)
+            self._fh = open(self.journal, "w", encoding="utf-8")
+        self._fh.write(line + "\n")
+        self._fh.flush()
+        os.fsync(self._fh.fileno())
+        self._pending += 1
+        if (not self.path.exists() or self._pending >= COMPACT_EVERY
+                or time.monotonic() - self._last_compact >= COMPACT_INTERVAL_S):
+            self.compact()
+
+    def compact(self) -> None:
+        """Rewrite the parquet table atomically with every row, then empty the journal."""
         self._write()
+        if self._fh is not None:
+            self._fh.seek(0)
+            self._fh.truncate()
+            self._fh.flush()
+            os.fsync(self._fh.fileno())
+        elif self.journal.exists():
+            with open(self.journal, "w", encoding="utf-8") as fh:
+                os.fsync(fh.fileno())
+        self._pending = 0
+        self._last_compact = time.monotonic()
+
+    def close(self) -> None:
+        """Compact what the journal holds and close it."""
+        if self._pending:
+            self.compact()
+        if self._fh is not None:
+            self._fh.close()
+            self._fh = None
 
     def frame(self) -> pd.DataFrame:
         """The rows as a DataFrame with the documented column order, by trial."""
@@ -246,13 +398,7 @@ class TrialLog:
         return cols + others
 
     def _write(self) -> None:
-        df = self.frame()
-        for col in ("trial", "batch", "n_data", "seed"):
-            df[col] = df[col].astype("int64")
-        for col in ("started_at", "finished_at"):
-            df[col] = pd.to_datetime(df[col], utc=True)
-        for col in ("source", "status", "error", "version", "predictions"):
-            df[col] = df[col].fillna("").astype(str)
+        df = _normalise(self.frame())
         atomic_write_bytes(self.path, lambda tmp: df.to_parquet(tmp, index=False))
 
     # ------------------------------------------------------------- sidecar

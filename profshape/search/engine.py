@@ -36,10 +36,12 @@ from .trust_region import (
     trust_region_state,
 )
 
-__all__ = ["MIN_OK_FOR_MODEL", "Observation", "Proposal", "Search"]
+__all__ = ["LOG_FLOOR", "MIN_OK_FOR_MODEL", "Observation", "Proposal", "Search"]
 
 #: Successful trials needed before the GP proposes; until then, more Sobol points.
 MIN_OK_FOR_MODEL = 2
+#: Smallest objective the log transform tells apart (a perfect fit, 0, counts as it).
+LOG_FLOOR = 1e-6
 
 SOURCES = ("initial", "proposal", "user", "resumed")
 
@@ -238,7 +240,9 @@ class Search:
 
     def _outcome(self, value: float) -> float:
         if self.settings.objective_transform == "log":
-            return -math.log(max(value, 1e-300))
+            # a perfect fit (0) is a valid value: misfits below a millionth of the
+            # noise floor are all alike to the surrogate (common practice, no source)
+            return -math.log(max(value, LOG_FLOOR))
         return -value
 
     # -------------------------------------------------------------- ask/tell
@@ -420,8 +424,8 @@ class Search:
             Objective to minimise (reduced chi-square). ``None`` or non-finite
             marks a failed run; a failed run is never fed to the objective GP.
         ok : bool, optional
-            Force the status; default: ok when ``value`` is finite (and > 0 with
-            the log transform).
+            Force the status; default: ok when ``value`` is finite (and >= 0 with
+            the log transform; values below :data:`LOG_FLOOR` count as it).
 
         Returns
         -------
@@ -434,13 +438,13 @@ class Search:
             )
         p = self._pending.pop(trial)
         v = math.nan if value is None else float(value)
-        good = math.isfinite(v) and (self.settings.objective_transform != "log" or v > 0)
+        good = math.isfinite(v) and (self.settings.objective_transform != "log" or v >= 0)
         if ok is None:
             ok = good
         if ok and not good:
             raise InputDataError(
                 f"tell: trial {trial} marked ok with an unusable value {value!r}; pass a "
-                "finite value (> 0 for the log transform) or ok=False."
+                "finite value (>= 0 for the log transform) or ok=False."
             )
         obs = Observation(p.trial, p.batch, p.source, p.u, v if ok else math.nan, bool(ok))
         self._observations[trial] = obs

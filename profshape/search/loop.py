@@ -38,12 +38,12 @@ import pandas as pd
 from .._version import __version__
 from ..exceptions import ConfigError, ForwardModelError
 from ..forward.base import Prediction
-from ..trials import TrialLog, nan_if_inf
+from ..trials import TrialLog, nan_if_inf, reason_signature
 from .engine import Observation, Proposal, Search
 from .progress import SearchProgress
 from .settings import SearchSettings
 
-__all__ = ["SearchResult", "run_search"]
+__all__ = ["MAX_SAME_FAILURES", "REPEATED_FAILURE", "SearchResult", "run_search"]
 
 
 @dataclass(frozen=True)
@@ -65,9 +65,12 @@ class SearchResult:
     n_failed : int
         Finished trials whose forward runs failed.
     stop_reason : str
-        ``"budget"``, ``"target"`` or ``"patience"``.
+        ``"budget"``, ``"target"``, ``"patience"`` or ``"repeated_failure"``
+        (``max_same_failures`` trials in a row failed for the same reason).
     log_path : Path
         The trial log.
+    stop_detail : str
+        For ``"repeated_failure"``: the reason those trials failed.
     """
 
     trials: pd.DataFrame
@@ -78,6 +81,7 @@ class SearchResult:
     n_failed: int
     stop_reason: str
     log_path: Path
+    stop_detail: str = ""
 
 
 @dataclass
@@ -103,6 +107,36 @@ def _is_pickling_error(exc: BaseException) -> bool:
 
 #: Start of the reason logged for a trial whose worker process died.
 WORKER_DIED = "worker process died"
+#: Default of ``run_search(max_same_failures=...)`` (common practice, no source).
+MAX_SAME_FAILURES = 10
+#: Stop reason after ``max_same_failures`` failures in a row with one reason.
+REPEATED_FAILURE = "repeated_failure"
+
+
+class _SameFailures:
+    """Counts trials in a row that failed for the same reason."""
+
+    def __init__(self, limit: int | None):
+        self.limit = limit
+        self.count = 0
+        self.signature = ""
+        self.detail = ""
+
+    def add(self, ok: bool, reason: str) -> None:
+        if ok:
+            self.count = 0
+            return
+        sig = reason_signature(reason)
+        if sig == self.signature:
+            self.count += 1
+        else:
+            self.signature, self.count = sig, 1
+        self.detail = reason
+
+    def reason(self) -> str | None:
+        if self.limit is not None and self.count >= self.limit:
+            return REPEATED_FAILURE
+        return None
 
 
 def _result(future: Future) -> Prediction:
@@ -145,7 +179,7 @@ def _row(problem: Any, run: _Running, outcome: Any, finished_at: datetime, seed:
     for lab in problem.dataset.labels:
         row[f"misfit__{lab}"] = nan_if_inf(m.per_point.get(lab, math.nan)) if ok else math.nan
     for key, value in m.per_observable.items():
-        lab, _, obs = key.partition("/")
+        lab, _, obs = key.rpartition("/")  # labels may hold "/", observable names do not
         row[f"misfit__{lab}__{obs}"] = nan_if_inf(value) if ok else math.nan
     for name, value in run.proposal.coefficients.items():
         row[name] = value
@@ -290,7 +324,11 @@ def _restore(search: Search, log: TrialLog, settings: SearchSettings, problem: A
         )
     finished = []
     done = set()
+    died = []
     for row in df.to_dict(orient="records"):
+        if row["status"] != "ok" and WORKER_DIED in str(row.get("error", "")):
+            died.append(row)  # lost with its worker, not a result of the model: run it again
+            continue
         u = np.array([row[f"u__{n}"] for n in problem.names], dtype=float)
         ok = row["status"] == "ok"
         value = float(row["reduced_chi2"]) if ok else math.nan
@@ -298,6 +336,13 @@ def _restore(search: Search, log: TrialLog, settings: SearchSettings, problem: A
                                     u, value, ok))
         done.add(int(row["trial"]))
     in_flight = []
+    if died:
+        log.drop_trials(int(r["trial"]) for r in died)
+        for row in died:
+            u = np.array([row[f"u__{n}"] for n in problem.names], dtype=float)
+            in_flight.append(Proposal(int(row["trial"]), int(row["batch"]), str(row["source"]), u,
+                                      search._coefficients(u)))
+            done.add(int(row["trial"]))
     for p in side.get("in_flight", []):
         if int(p["trial"]) in done:
             continue
@@ -314,6 +359,7 @@ def run_search(
     log_path: str | os.PathLike[str],
     executor: Executor | None = None,
     resume: bool = False,
+    max_same_failures: int | None = MAX_SAME_FAILURES,
 ) -> SearchResult:
     """Calibrate a problem by Bayesian optimisation.
 
@@ -333,7 +379,13 @@ def run_search(
     resume : bool, default=False
         Continue from an existing log: reuse its finished trials, re-run those
         in flight at the interruption (source ``"resumed"``) and go on with
-        the same seed stream. Without an existing log, start afresh.
+        the same seed stream. Without an existing log, start afresh. Trials
+        whose worker process died are run again.
+    max_same_failures : int or None, default=MAX_SAME_FAILURES
+        Stop (reason ``"repeated_failure"``) once this many trials in a row
+        failed for the same reason (work folders and ids aside): a typo'd
+        observable name or a broken program would fail every trial. ``None``
+        never stops for this.
 
     Returns
     -------
@@ -371,14 +423,16 @@ def run_search(
     runner = _Runner(problem, executor, renew)
     progress = SearchProgress(settings.budget, settings.progress, initial=search.n_finished)
     stop_reason: str | None = None
+    same = _SameFailures(max_same_failures)
 
     def collect() -> None:
         for run, outcome, finished_at in runner.wait_finished():
             row = _row(problem, run, outcome, finished_at, settings.seed)
             value = row["reduced_chi2"]
+            log.append(row)  # log first, then learn: a trial the search rejects is still kept
             search.tell(run.proposal.trial, value if outcome.ok else None, ok=outcome.ok)
-            log.append(row)
             progress.update(outcome.ok, value, search.kind_of(run.proposal.trial, run.source))
+            same.add(outcome.ok, row["error"])
         log.write_sidecar(_sidecar(search, settings, problem, None))
 
     try:
@@ -387,7 +441,7 @@ def run_search(
             for p in search.pending:  # in flight at the interruption
                 runner.submit(p, "resumed")
             while True:
-                stop_reason = search.stop_reason()
+                stop_reason = search.stop_reason() or same.reason()
                 if stop_reason is None:
                     room = settings.workers - len(runner.running)
                     if settings.asynchronous and room > 0:
@@ -417,12 +471,13 @@ def run_search(
                 "pool (it replaces a broken one), or wrap crash-prone code in "
                 "profshape.forward.external.ExternalModel."
             ) from cause
-        stop_reason = search.stop_reason() or "budget"
+        stop_reason = same.reason() or search.stop_reason() or "budget"
         log.write_sidecar(_sidecar(search, settings, problem, stop_reason))
     finally:
         progress.close()
         if own:
             runner.executor.shutdown(wait=True, cancel_futures=True)
+        log.close()
     best = search.best()
     return SearchResult(
         trials=log.frame(),
@@ -433,4 +488,5 @@ def run_search(
         n_failed=search.n_failed,
         stop_reason=stop_reason,
         log_path=log_path,
+        stop_detail=same.detail if stop_reason == REPEATED_FAILURE else "",
     )
