@@ -1,25 +1,63 @@
 """The ``profshape`` command line.
 
-Exit codes: 0 success, 2 bad input (the message says what and where), 1 a
-failure of the run itself, 130 interrupted (Ctrl-C; the trial log keeps what
-was done, and ``profshape resume DIR`` continues).
+Exit codes: 0 success, 2 bad input (the message says what and where; also an
+output folder that another process is writing), 1 a failure of the run itself
+(including a calibration in which no trial succeeded, or whose posterior could
+not be computed: the summary and report are written first), 130 interrupted
+(Ctrl-C) and 143 terminated (SIGTERM); after either, the trial log keeps what
+was done and ``profshape resume DIR`` continues.
 """
 
 from __future__ import annotations
 
 import argparse
+import contextlib
 import re
+import signal
 import sys
-from collections.abc import Sequence
+import warnings
+from collections.abc import Iterator, Sequence
 from pathlib import Path
 
 from ._version import __version__
 from .demo import demo_data_folder
-from .exceptions import InputDataError
+from .exceptions import CampaignFailedError, InputDataError, ProfshapeWarning
 
 __all__ = ["main"]
 
 EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
+EXIT_TERMINATED = 128 + signal.SIGTERM
+
+
+class _Terminated(KeyboardInterrupt):
+    """SIGTERM, handled like Ctrl-C (the run unwinds, pools close, the log is kept)."""
+
+
+def _on_sigterm(signum: int, frame: object) -> None:
+    raise _Terminated()
+
+
+@contextlib.contextmanager
+def _signals_and_warnings() -> Iterator[None]:
+    """SIGTERM stops like Ctrl-C; profshape warnings print as one ``profshape: warning:`` line."""
+    previous = None
+    with contextlib.suppress(ValueError):  # not in the main thread: leave SIGTERM alone
+        previous = signal.signal(signal.SIGTERM, _on_sigterm)
+    shown = warnings.showwarning
+
+    def show(message, category, filename, lineno, file=None, line=None):
+        if issubclass(category, ProfshapeWarning):
+            print(f"profshape: warning: {message}", file=sys.stderr)
+        else:
+            shown(message, category, filename, lineno, file, line)
+
+    warnings.showwarning = show
+    try:
+        yield
+    finally:
+        warnings.showwarning = shown
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
 
 
 def _err(message: str) -> None:
@@ -85,6 +123,8 @@ def _print_summary(summary: dict, out: Path) -> None:
     print(f"output folder: {out}")
     print(f"trials: {summary.get('n_trials')} ({summary.get('n_failed')} failed); "
           f"stop reason: {summary.get('stop_reason')}")
+    if summary.get("stop_detail"):
+        print(f"  the repeated failure: {summary['stop_detail'][-1500:]}")
     if best is not None:
         print(f"best reduced chi-square: {best:.4g}")
     for name, value in (summary.get("best_coefficients") or {}).items():
@@ -150,12 +190,17 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.print_help()
         return EXIT_BAD_INPUT
     try:
-        return int(args.func(args))
-    except KeyboardInterrupt:
+        with _signals_and_warnings():
+            return int(args.func(args))
+    except KeyboardInterrupt as exc:
         folder = getattr(args, "out", None) or getattr(args, "folder", None)
         hint = f" `profshape resume {folder}`" if folder else " `profshape resume <output folder>`"
-        _err("interrupted; the trial log keeps every finished trial. Continue with" + hint + ".")
-        return EXIT_INTERRUPTED
+        what = "terminated (SIGTERM)" if isinstance(exc, _Terminated) else "interrupted"
+        _err(f"{what}; the trial log keeps every finished trial. Continue with" + hint + ".")
+        return EXIT_TERMINATED if isinstance(exc, _Terminated) else EXIT_INTERRUPTED
+    except CampaignFailedError as exc:
+        _err(str(exc))
+        return EXIT_FAILURE
     except InputDataError as exc:
         _err(str(exc))
         return EXIT_BAD_INPUT

@@ -8,6 +8,7 @@ example, is in the README ("Calibration file").
 
 from __future__ import annotations
 
+import difflib
 import math
 import re
 import tomllib
@@ -18,9 +19,40 @@ from typing import Any
 
 from .exceptions import ConfigError, InputDataError
 
-__all__ = ["CalibrationConfig", "load_config", "parse_config"]
+__all__ = ["FIGURE_FORMATS", "MAXIMA", "CalibrationConfig", "load_config", "parse_config"]
 
 _NUMBER = (int, float)
+
+#: Stated maxima of size-like settings, checked where the file enters (the memory or
+#: time a value beyond them would take is never what was meant; common practice, no
+#: source). The built-in solver's own settings are checked against
+#: ``profshape.solver.settings`` (``n_cells`` at most 4000).
+MAXIMA: dict[str, int] = {
+    "forward_model.grid_points": 100_000,
+    "forward_model.retries": 100,
+    "search.budget": 100_000,
+    "search.batch_size": 64,
+    "search.n_initial": 10_000,
+    "search.patience": 100_000,
+    "search.num_restarts": 1_000,
+    "search.raw_samples": 100_000,
+    "search.trust_region_warmup": 100_000,
+    "search.stop_after_failures": 100_000,
+    "search.seed": 2**63 - 1,
+    "workers.n_workers": 1_024,
+    "posterior.n_walkers": 10_000,
+    "posterior.n_steps": 1_000_000,
+    "posterior.burn_in": 1_000_000,
+    "posterior.thin": 100_000,
+    "posterior.n_check_draws": 10_000,
+    "posterior.n_gp_draws": 100_000,
+    "posterior.n_refine_rounds": 1_000,
+    "posterior.n_refine_draws": 10_000,
+    "posterior.n_band_draws": 10_000,
+    "posterior.seed": 2**63 - 1,
+}
+#: Figure formats accepted in ``[output] figures`` (all written by matplotlib).
+FIGURE_FORMATS = ("png", "svg", "pdf", "eps", "ps", "jpg", "jpeg", "tif", "tiff", "svgz")
 
 # Schema: key -> (types, required, default). A dict value is a sub-table schema;
 # the special key "*" accepts any key (free-form tables checked elsewhere).
@@ -42,6 +74,7 @@ _SCHEMA: dict[str, Any] = {
         "timeout_s": (_NUMBER, False, 600.0),
         "retries": ((int,), False, 0),
         "grid_points": ((int,), False, 251),
+        "grid_z_m": ((list,), False, None),
         "version": ((str,), False, "0"),
         "cache": ((bool,), False, True),
     },
@@ -65,6 +98,7 @@ _SCHEMA: dict[str, Any] = {
         "raw_samples": ((int,), False, None),
         "strategy": ((str,), False, None),
         "trust_region_warmup": ((int,), False, None),
+        "stop_after_failures": ((int,), False, 10),
     },
     "workers": {
         "n_workers": ((int,), False, 1),
@@ -95,7 +129,7 @@ _POINT_SCHEMA: dict[str, Any] = {
     "label": ((str,), True, None),
     "discharge_voltage_V": (_NUMBER, True, None),
     "anode_mass_flow_kg_s": (_NUMBER, True, None),
-    "propellant": ((str,), False, "xenon"),
+    "propellant": ((str,), False, None),  # None: xenon, with a warning
     "magnetic_field_scale": (_NUMBER, False, 1.0),
     "ion_velocity_file": ((str,), False, None),
     "scalars": {"*": None},
@@ -128,7 +162,11 @@ class CalibrationConfig:
         return self.data.get(name) or {}
 
     def error(self, key: str, message: str) -> ConfigError:
-        """A ConfigError naming the file, the key and its line."""
+        """A ConfigError naming the file, the key and its line.
+
+        ``key`` counts array elements from 0 (``operating_points[0]``); the
+        message counts them from 1, as a reader of the file does.
+        """
         return ConfigError(f"{_location(self.path, self.text, key)}: {message}")
 
     def resolve(self, key: str, value: str, must_exist: bool = True) -> Path:
@@ -180,9 +218,23 @@ def _line_of(text: str, dotted: str) -> int | None:
     return header_line.get(dotted_table)
 
 
+def _one_based(key: str) -> str:
+    return re.sub(r"\[(\d+)\]", lambda m: f"[{int(m.group(1)) + 1}]", key)
+
+
 def _location(path: Path, text: str, key: str) -> str:
     line = _line_of(text, key) if text else None
-    return f"{path}: key {key!r}" + (f" (line {line})" if line else "")
+    shown = _one_based(key)
+    where = [f"line {line}"] if line else []
+    if shown != key:
+        where.append("arrays counted from 1")
+    return f"{path}: key {shown!r}" + (f" ({'; '.join(where)})" if where else "")
+
+
+def did_you_mean(name: str, known: Any) -> str:
+    """`` (did you mean 'x'?)`` for the closest of ``known`` (difflib), or ``""``."""
+    near = difflib.get_close_matches(str(name), [str(k) for k in known], n=1, cutoff=0.6)
+    return f" (did you mean {near[0]!r}?)" if near else ""
 
 
 def _type_name(types: tuple[type, ...]) -> str:
@@ -204,11 +256,10 @@ def _check_table(table: Any, schema: Mapping[str, Any], where: str, cfg: Calibra
     out: dict[str, Any] = {}
     for key in table:
         if key not in schema:
-            near = [k for k in schema if k.split("_")[0] == key.split("_")[0]]
+            what = "table" if isinstance(table[key], dict) else "key"
             raise cfg.error(
                 f"{where}.{key}" if where else key,
-                f"unknown key; known keys here: {sorted(schema)}"
-                + (f" (did you mean {near[0]!r}?)" if near else "") + ".",
+                f"unknown {what}{did_you_mean(key, schema)}; known keys here: {sorted(schema)}.",
             )
     for key, spec in schema.items():
         dotted = f"{where}.{key}" if where else key
@@ -235,6 +286,10 @@ def _check_table(table: Any, schema: Mapping[str, Any], where: str, cfg: Calibra
                 raise cfg.error(dotted, f"must be {_article(_type_name(types))}; got {value!r}.")
             if isinstance(value, float) and not math.isfinite(value):
                 raise cfg.error(dotted, f"must be finite; got {value!r}.")
+            top = MAXIMA.get(re.sub(r"\[\d+\]", "", dotted))
+            if top is not None and isinstance(value, int) and value > top:
+                raise cfg.error(dotted, f"must be at most {top:,}; got {value:,}. This limit "
+                                "keeps a typo from exhausting memory or time; lower the value.")
             out[key] = value
     return out
 
@@ -259,6 +314,7 @@ def parse_config(text: str, path: str | Path = "<string>", base_dir: str | Path 
         base = Path(base_dir)
     else:
         base = path.parent if path.name != "<string>" else Path.cwd()
+    text = text.removeprefix("\ufeff")  # a UTF-8 byte-order mark some editors write
     cfg = CalibrationConfig(path=path, base_dir=base.resolve(), data={}, text=text)
     try:
         raw = tomllib.loads(text)
@@ -291,9 +347,82 @@ def parse_config(text: str, path: str | Path = "<string>", base_dir: str | Path 
         raise cfg.error("forward_model.retries", f"must be >= 0; got {fm['retries']!r}.")
     if fm["grid_points"] < 2:
         raise cfg.error("forward_model.grid_points", f"must be >= 2; got {fm['grid_points']!r}.")
+    if fm["grid_z_m"] is not None:
+        _check_pair(cfg, "forward_model.grid_z_m", fm["grid_z_m"], "[z_start_m, z_end_m]",
+                    low=0.0)
     if cfg.data["workers"]["n_workers"] < 1:
         raise cfg.error("workers.n_workers", "must be >= 1.")
+    _check_values(cfg)
     return cfg
+
+
+def _number(value: Any) -> bool:
+    return isinstance(value, _NUMBER) and not isinstance(value, bool) and math.isfinite(value)
+
+
+def _check_pair(cfg: CalibrationConfig, key: str, pair: Any, form: str, low: float | None = None,
+                positive: bool = False) -> None:
+    if not (isinstance(pair, list) and len(pair) == 2 and all(_number(v) for v in pair)):
+        n = len(pair) if isinstance(pair, list) else 1
+        raise cfg.error(key, f"must be {form}, two finite numbers; got {pair!r} ({n} value"
+                        f"{'s' if n != 1 else ''}).")
+    if not pair[0] < pair[1]:
+        raise cfg.error(key, f"must be {form} with the first below the second; got {pair!r}.")
+    if low is not None and pair[0] < low:
+        raise cfg.error(key, f"values must be >= {low:g}; got {pair!r}.")
+    if positive and pair[0] <= 0:
+        raise cfg.error(key, f"values must be > 0; got {pair!r}.")
+
+
+def _check_values(cfg: CalibrationConfig) -> None:
+    """Values whose type alone says too little: pairs, weights, starts, seeds, formats."""
+    d = cfg.data
+    lk = d["likelihood"]
+    if lk["fit_discrepancy_m_s"] is not None:
+        _check_pair(cfg, "likelihood.fit_discrepancy_m_s", lk["fit_discrepancy_m_s"],
+                    "[lower_m_s, upper_m_s]", positive=True)
+    _check_pair(cfg, "likelihood.scale_bounds_log10", lk["scale_bounds_log10"],
+                "[lower, upper] (log10 of the scale)")
+    for name, w in lk["weights"].items():
+        if not _number(w) or w < 0:
+            raise cfg.error(f"likelihood.weights.{name}",
+                            f"must be a number >= 0 (a weight on that observable's chi-square); "
+                            f"got {w!r}.")
+    for i, start in enumerate(d["shape"]["start"]):
+        for name, value in start.items():
+            if not _number(value):
+                raise cfg.error(f"shape.start[{i}].{name}",
+                                f"must be a finite number (the coefficient in its unit); "
+                                f"got {value!r}.")
+    for section in ("search", "posterior"):
+        seed = d[section].get("seed")
+        if seed is not None and seed < 0:
+            raise cfg.error(f"{section}.seed", f"must be >= 0; got {seed!r}.")
+    for key in ("n_initial", "patience", "num_restarts", "raw_samples", "trust_region_warmup"):
+        value = d["search"][key]
+        if value is not None and value < (0 if key == "trust_region_warmup" else 1):
+            raise cfg.error(f"search.{key}", f"must be >= 1; got {value!r}.")
+    if d["search"]["stop_after_failures"] < 0:
+        raise cfg.error("search.stop_after_failures",
+                        "must be >= 0 (0: never stop for repeated failures).")
+    figures = d["output"]["figures"]
+    for i, fmt in enumerate(figures):
+        if not isinstance(fmt, str) or fmt.lower().lstrip(".") not in FIGURE_FORMATS:
+            raise cfg.error(f"output.figures[{i}]",
+                            f"unknown figure format {fmt!r}{did_you_mean(str(fmt), FIGURE_FORMATS)}"
+                            f"; use some of {list(FIGURE_FORMATS)}.")
+    post = d["posterior"]
+    for key in ("n_walkers", "n_steps", "n_band_draws"):
+        if post[key] is not None and post[key] < 1:
+            raise cfg.error(f"posterior.{key}", f"must be >= 1; got {post[key]!r}.")
+    if post["burn_in"] is not None:
+        steps = post["n_steps"]
+        if post["burn_in"] < 0:
+            raise cfg.error("posterior.burn_in", f"must be >= 0; got {post['burn_in']!r}.")
+        if steps is not None and post["burn_in"] >= steps:
+            raise cfg.error("posterior.burn_in",
+                            f"must be smaller than n_steps = {steps}; got {post['burn_in']}. "
+                            "Lower burn_in or raise n_steps.")
 
 
 def load_config(path: str | Path) -> CalibrationConfig:
@@ -308,7 +437,7 @@ def load_config(path: str | Path) -> CalibrationConfig:
     if not path.is_file():
         raise ConfigError(f"{path}: calibration file not found.")
     try:
-        text = path.read_text(encoding="utf-8")
+        text = path.read_text(encoding="utf-8-sig")  # a byte-order mark is accepted
     except (OSError, UnicodeDecodeError) as exc:
         raise ConfigError(f"{path}: cannot be read: {exc}") from None
     return parse_config(text, path)

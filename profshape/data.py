@@ -26,6 +26,7 @@ silently. Unsorted positions are sorted with a warning; duplicates are refused.
 
 from __future__ import annotations
 
+import difflib
 import math
 import re
 import warnings
@@ -477,8 +478,10 @@ def _check_columns(df: pd.DataFrame, path: Path | str, required: Sequence[str],
             + f", found {cols}.{hint}"
         )
     if unknown:
+        near = difflib.get_close_matches(unknown[0], [*required, *optional], n=1, cutoff=0.6)
+        guess = f" (did you mean {near[0]!r} for {unknown[0]!r}?)" if near else ""
         raise InputDataError(
-            f"{path}: unknown column(s) {unknown}; expected {list(required)}"
+            f"{path}: unknown column(s) {unknown}{guess}; expected {list(required)}"
             + (f" (optional {list(optional)})" if optional else "")
             + f".{hint} Remove or rename them (nothing is dropped silently)."
         )
@@ -524,11 +527,13 @@ def read_ion_velocity_table(path: str | Path) -> IonVelocityProfile:
 
 
 def _find(folder: Path, stem: str) -> Path | None:
-    for suffix in (".csv", ".parquet"):
-        p = folder / f"{stem}{suffix}"
-        if p.exists():
-            return p
-    return None
+    found = [p for p in (folder / f"{stem}.csv", folder / f"{stem}.parquet") if p.exists()]
+    if len(found) > 1:
+        raise InputDataError(
+            f"{folder}: both {stem}.csv and {stem}.parquet are present; which one holds the data "
+            "is ambiguous. Keep one of them (move the other out of the folder)."
+        )
+    return found[0] if found else None
 
 
 def load_dataset(folder: str | Path) -> DataSet:

@@ -7,9 +7,12 @@ Every error raised for bad input derives from :class:`InputDataError`, itself a
 from __future__ import annotations
 
 __all__ = [
+    "CampaignFailedError",
     "ConfigError",
     "ConvergenceWarning",
+    "FlatObjectiveWarning",
     "ForwardModelError",
+    "ImplausibleValueWarning",
     "InputDataError",
     "ProfshapeError",
     "ProfshapeWarning",
@@ -47,3 +50,16 @@ class ProfshapeWarning(UserWarning):
 
 class ConvergenceWarning(ProfshapeWarning):
     """A solver, fit or sampler did not meet its convergence test."""
+
+
+class CampaignFailedError(ProfshapeError):
+    """A calibration ran but produced no usable result (every trial failed, or the
+    posterior could not be computed). Raised after the summary and report are written."""
+
+
+class FlatObjectiveWarning(ProfshapeWarning):
+    """Every successful trial gave the same misfit: the coefficients change nothing."""
+
+
+class ImplausibleValueWarning(ProfshapeWarning):
+    """An input value lies outside the physical range stated for it (likely a unit slip)."""

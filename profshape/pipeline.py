@@ -11,8 +11,10 @@ from __future__ import annotations
 
 import hashlib
 import json
+import math
 import os
 import time
+import warnings
 from concurrent.futures import Executor
 from contextlib import ExitStack
 from dataclasses import dataclass
@@ -30,7 +32,15 @@ from .data import (
     load_dataset,
     read_ion_velocity_table,
 )
-from .exceptions import ConfigError, InputDataError
+from .exceptions import (
+    CampaignFailedError,
+    ConfigError,
+    FlatObjectiveWarning,
+    ImplausibleValueWarning,
+    InputDataError,
+    ProfshapeWarning,
+)
+from .folder_lock import LOCK_FILE, lock_output_folder
 from .forward.base import ForwardModel
 from .likelihood import LikelihoodSettings
 from .operating_point import OperatingPoint
@@ -66,6 +76,9 @@ class Calibration:
     search_settings : profshape.search.SearchSettings
     prediction_points : list of OperatingPoint
         Extra points (not in the data) to predict at.
+    posterior_settings : profshape.posterior.PosteriorSettings or None
+        The ``[posterior]`` settings, checked before the first forward run
+        (None when the posterior is disabled).
     """
 
     config: CalibrationConfig
@@ -73,6 +86,17 @@ class Calibration:
     device: Any
     search_settings: Any
     prediction_points: list[OperatingPoint]
+    posterior_settings: Any = None
+
+
+def _propellant(cfg: CalibrationConfig, key: str, entry: dict[str, Any]) -> str:
+    """The point's propellant; xenon, with a warning, when the file names none."""
+    if entry.get("propellant") is None:
+        warnings.warn(f"{cfg.path}: {key} gives no propellant; using xenon. Write "
+                      "propellant = \"xenon\" (or another) to silence this.",
+                      ProfshapeWarning, stacklevel=3)
+        return "xenon"
+    return entry["propellant"]
 
 
 # ----------------------------------------------------------------- building
@@ -91,7 +115,7 @@ def _dataset(cfg: CalibrationConfig) -> DataSet:
                 label=entry["label"],
                 discharge_voltage_V=entry["discharge_voltage_V"],
                 anode_mass_flow_kg_s=entry["anode_mass_flow_kg_s"],
-                propellant=entry["propellant"],
+                propellant=_propellant(cfg, key, entry),
                 magnetic_field_scale=entry["magnetic_field_scale"],
             )
         except InputDataError as exc:
@@ -126,7 +150,8 @@ def _prediction_points(cfg: CalibrationConfig) -> list[OperatingPoint]:
     for i, entry in enumerate(cfg.section("posterior").get("predict", [])):
         try:
             out.append(OperatingPoint(entry["label"], entry["discharge_voltage_V"],
-                                      entry["anode_mass_flow_kg_s"], entry["propellant"],
+                                      entry["anode_mass_flow_kg_s"],
+                                      _propellant(cfg, f"posterior.predict[{i}]", entry),
                                       entry["magnetic_field_scale"]))
         except InputDataError as exc:
             raise cfg.error(f"posterior.predict[{i}]", str(exc)) from None
@@ -169,7 +194,12 @@ def _family(cfg: CalibrationConfig, device: Any) -> ShapeFamily:
         import pandas as pd
 
         path = cfg.resolve("shape.options.reference_file", ref)
-        table = pd.read_csv(path)
+        try:
+            table = pd.read_csv(path)
+        except (OSError, UnicodeDecodeError, ValueError, pd.errors.ParserError) as exc:
+            raise cfg.error("shape.options.reference_file",
+                            f"{path} is not a readable CSV table ({type(exc).__name__}: {exc}); "
+                            "give columns z_m, value.") from None
         if not {"z_m", "value"} <= set(table.columns):
             raise cfg.error("shape.options.reference_file",
                             f"{path} must have columns z_m and value; found {list(table.columns)}.")
@@ -212,10 +242,7 @@ def _forward_model(cfg: CalibrationConfig, device: Any, out_dir: Path) -> Forwar
         if exe and ("/" in exe or exe.startswith(".")):
             resolved = cfg.resolve("forward_model.command", exe)
             command[0] = str(resolved)
-        if device is not None:
-            grid = np.linspace(0.0, device.domain_length_m, fm["grid_points"])
-        else:
-            grid = None
+        grid = _external_grid(cfg, device)
         try:
             model = ExternalModel(command, base_dir=out_dir / "work", timeout_s=float(fm["timeout_s"]),
                                   retries=fm["retries"], grid_m=grid, version=fm["version"])
@@ -230,10 +257,82 @@ def _forward_model(cfg: CalibrationConfig, device: Any, out_dir: Path) -> Forwar
     return model
 
 
+def _external_grid(cfg: CalibrationConfig, device: Any) -> np.ndarray:
+    """The profile grid written for an external program: ``grid_z_m`` and ``grid_points``.
+
+    Without ``grid_z_m`` the range is the device's anode-to-cathode length, or
+    else the adapter's default (0 to 0.0625 m); ``grid_points`` always applies.
+    """
+    from .forward.external import DEFAULT_GRID_M
+
+    fm = cfg.section("forward_model")
+    if fm["grid_z_m"] is not None:
+        z0, z1 = (float(v) for v in fm["grid_z_m"])
+    elif device is not None:
+        z0, z1 = 0.0, float(device.domain_length_m)
+    else:
+        z0, z1 = float(DEFAULT_GRID_M[0]), float(DEFAULT_GRID_M[-1])
+    return np.linspace(z0, z1, fm["grid_points"])
+
+
+def _check_observables(cfg: CalibrationConfig, dataset: DataSet, model: ForwardModel) -> None:
+    """Scalar names of the data against what the forward model can produce."""
+    from .config import did_you_mean
+    from .data import SCALAR_UNITS
+
+    produced = getattr(model, "scalar_names", None)
+    inner = getattr(model, "model", None)  # a cache wrapper
+    if produced is None and inner is not None:
+        produced = getattr(inner, "scalar_names", None)
+    for i, point in enumerate(dataset):
+        for name in point.scalars:
+            if produced is not None and name not in produced:
+                key = (f"operating_points[{i}].scalars.{name}" if cfg.data["operating_points"]
+                       else "data_folder")
+                raise cfg.error(key, f"the forward model does not produce a scalar {name!r}"
+                                f"{did_you_mean(name, produced)}; it produces {sorted(produced)}.")
+            if produced is None and name not in SCALAR_UNITS:
+                hint = did_you_mean(name, SCALAR_UNITS)
+                if hint:  # a near miss of a known name is a typo, not a new observable
+                    key = (f"operating_points[{i}].scalars.{name}" if cfg.data["operating_points"]
+                           else "data_folder")
+                    raise cfg.error(key, f"unknown scalar {name!r}{hint}; the known ones are "
+                                    f"{sorted(SCALAR_UNITS)}. Rename it, or give your program's "
+                                    "name exactly as it writes it.")
+
+
+def _posterior_settings(cfg: CalibrationConfig, problem: CalibrationProblem, seed: int) -> Any:
+    """The ``[posterior]`` settings, checked now (before any forward run)."""
+    import re
+
+    from .posterior import PosteriorSettings
+
+    post = cfg.section("posterior")
+    if not post["enabled"]:
+        return None
+    keys = ("n_walkers", "n_steps", "burn_in", "thin", "n_gp_draws", "n_refine_rounds",
+            "n_refine_draws", "n_check_draws")
+    kwargs = {k: post[k] for k in keys if post[k] is not None}
+    try:
+        settings = PosteriorSettings(seed=post["seed"] if post["seed"] is not None else seed,
+                                     band_levels=tuple(float(v) for v in post["band_levels"]),
+                                     **kwargs)
+    except InputDataError as exc:
+        m = re.search(r"PosteriorSettings\.(\w+)", str(exc))
+        raise cfg.error(f"posterior.{m.group(1) if m else 'enabled'}", str(exc)) from None
+    d = problem.dim
+    if settings.n_walkers < 2 * d:
+        raise cfg.error("posterior.n_walkers",
+                        f"must be at least 2 * d = {2 * d} for the {d} searched parameters (the "
+                        f"ensemble sampler's requirement); got {settings.n_walkers}.")
+    return settings
+
+
 def _search_settings(cfg: CalibrationConfig, problem: CalibrationProblem, progress: bool) -> Any:
     from .search import SearchSettings
 
     s = dict(cfg.section("search"))
+    s.pop("stop_after_failures", None)  # a run_search argument
     starts = []
     for i, start in enumerate(cfg.section("shape")["start"]):
         try:
@@ -279,8 +378,14 @@ def build_calibration(cfg: CalibrationConfig, out_dir: str | Path, progress: boo
         raise
     except InputDataError as exc:
         raise ConfigError(f"{cfg.path}: {exc}") from None
-    return Calibration(cfg, problem, device, _search_settings(cfg, problem, progress),
-                       _prediction_points(cfg))
+    _check_observables(cfg, dataset, model)
+    from .plausibility import check_plausible
+
+    for message in check_plausible(dataset):
+        warnings.warn(f"{cfg.path}: {message}", ImplausibleValueWarning, stacklevel=2)
+    search = _search_settings(cfg, problem, progress)
+    return Calibration(cfg, problem, device, search, _prediction_points(cfg),
+                       _posterior_settings(cfg, problem, search.seed))
 
 
 # ----------------------------------------------------------- output folder
@@ -327,7 +432,7 @@ def open_output_folder(cfg: CalibrationConfig, out_dir: str | Path, resume: bool
             )
         if info.get("fingerprint") == fp:
             return out
-    elif out.exists() and any(out.iterdir()):
+    elif out.exists() and any(p.name != LOCK_FILE for p in out.iterdir()):
         raise InputDataError(
             f"output folder {out} is not empty and holds no calibration; choose a new or empty --out."
         )
@@ -356,8 +461,15 @@ def config_from_folder(out_dir: str | Path) -> CalibrationConfig:
             f"{out} is not a calibration folder (no {RUN_FILE} and {CONFIG_COPY}); give the folder "
             "that `profshape calibrate` or `profshape demo` wrote."
         )
-    info = json.loads(run_file.read_text(encoding="utf-8"))
-    return parse_config(copy.read_text(encoding="utf-8"), path=copy, base_dir=info["base_dir"])
+    try:
+        info = json.loads(run_file.read_text(encoding="utf-8"))
+        base_dir = info["base_dir"]
+    except (OSError, UnicodeDecodeError, ValueError, KeyError, TypeError) as exc:
+        raise InputDataError(
+            f"{run_file} is damaged ({type(exc).__name__}: {exc}); it must hold the JSON that "
+            "`profshape calibrate` wrote. Restore it, or start the calibration in a new --out."
+        ) from None
+    return parse_config(copy.read_text(encoding="utf-8"), path=copy, base_dir=base_dir)
 
 
 # --------------------------------------------------------------- executors
@@ -377,31 +489,93 @@ def _executor(cfg: CalibrationConfig, stack: ExitStack) -> Executor | None:
         from .executors import InlineExecutor
 
         return InlineExecutor()
-    from .executors import local_executor
-
-    return stack.enter_context(local_executor(workers["n_workers"]))
+    return None  # a local pool: run_search makes its own (and replaces it if a worker dies)
 
 
 # ----------------------------------------------------------------- running
+def _flat_objective(trials: Any) -> str | None:
+    """Why the objective looks flat (every successful trial gave one misfit), or None."""
+    ok = trials.loc[trials["status"] == "ok", "reduced_chi2"].to_numpy(dtype=float)
+    ok = ok[np.isfinite(ok)]
+    if ok.size < 3:
+        return None
+    spread = float(ok.max() - ok.min())
+    # relative spread at rounding level (common practice, no source)
+    if spread <= 1e-9 * max(1.0, float(np.abs(ok).max())):
+        return (f"flat objective: all {ok.size} successful trials gave the same reduced "
+                f"chi-square ({float(ok[0]):.6g}); the forward model's output does not depend on "
+                "the coefficients, so the 'best fit' is arbitrary and no posterior was sampled. "
+                "Check that the program reads the profile file it is given.")
+    return None
+
+
+def _failure_summary(trials: Any) -> str:
+    """The most common failure reason of a log, with its count."""
+    from .trials import reason_signature
+
+    errors = [str(e) for e in trials.loc[trials["status"] != "ok", "error"]]
+    if not errors:
+        return ""
+    counts: dict[str, tuple[int, str]] = {}
+    for e in errors:
+        sig = reason_signature(e)
+        n, first = counts.get(sig, (0, e))
+        counts[sig] = (n + 1, first)
+    n, reason = max(counts.values(), key=lambda t: t[0])
+    return f"{n} of {len(errors)} failed with: {reason[-1500:]}"
+
+
 def run_calibration(cfg: CalibrationConfig, out_dir: str | Path, *, resume: bool = False,
                     progress: bool = True) -> dict[str, Any]:
     """Search, then posterior, bands, predictions, figures and report.
+
+    The output folder is locked for the whole run (a second writer is refused;
+    see :mod:`profshape.folder_lock`), and every section of the file is checked
+    before the first forward run.
 
     Returns
     -------
     dict
         The summary (also written to ``summary.json``).
+
+    Raises
+    ------
+    CampaignFailedError
+        After the summary and report are written, when no trial succeeded or
+        the posterior could not be computed.
     """
     from .report import finish
     from .search import run_search
 
-    out = open_output_folder(cfg, out_dir, resume=resume)
-    cal = build_calibration(cfg, out, progress=progress)
-    with ExitStack() as stack:
+    with lock_output_folder(out_dir), ExitStack() as stack:
+        out = open_output_folder(cfg, out_dir, resume=resume)
+        cal = build_calibration(cfg, out, progress=progress)
         executor = _executor(cfg, stack)
+        limit = cfg.section("search")["stop_after_failures"] or None
         result = run_search(cal.problem, cal.search_settings, out / TRIALS_FILE,
-                            executor=executor, resume=resume)
-        return finish(cal, result, out, executor=executor)
+                            executor=executor, resume=resume, max_same_failures=limit)
+        flat = _flat_objective(result.trials) if result.best_trial is not None else None
+        if flat:
+            warnings.warn(flat, FlatObjectiveWarning, stacklevel=2)
+        if executor is None and cal.posterior_settings is not None and not flat \
+                and result.best_trial is not None:
+            from .executors import local_executor
+
+            executor = stack.enter_context(local_executor(cfg.section("workers")["n_workers"]))
+        summary = finish(cal, result, out, executor=executor, skip_posterior=flat)
+    if result.best_trial is None or not math.isfinite(result.best_reduced_chi2):
+        why = _failure_summary(result.trials)
+        raise CampaignFailedError(
+            f"no trial succeeded ({result.n_trials} trials, stop reason: {result.stop_reason}); "
+            f"{why}. The log and report are in {out}; fix the cause, then start again."
+        )
+    if summary.get("posterior_error"):
+        raise CampaignFailedError(
+            f"the search finished (best reduced chi-square {result.best_reduced_chi2:.4g}, "
+            f"trial {result.best_trial}) but the posterior could not be computed: "
+            f"{summary['posterior_error']}. The summary and report of the search are in {out}."
+        )
+    return summary
 
 
 def calibrate(path: str | Path, out_dir: str | Path | None = None, *, progress: bool = True

@@ -55,7 +55,8 @@ def _clean(obj: Any) -> Any:
     return obj
 
 
-def finish(cal: Any, result: Any, out: Path, executor: Any = None) -> dict[str, Any]:
+def finish(cal: Any, result: Any, out: Path, executor: Any = None,
+           skip_posterior: str | None = None) -> dict[str, Any]:
     """Posterior, bands and predictions after a search; then :func:`write_outputs`.
 
     Parameters
@@ -66,6 +67,11 @@ def finish(cal: Any, result: Any, out: Path, executor: Any = None) -> dict[str, 
         The calibration's output folder.
     executor : Executor, optional
         Runs the posterior's forward runs in parallel.
+    skip_posterior : str, optional
+        Why no posterior is sampled (noted in the report), e.g. a flat objective.
+
+    A posterior that fails is noted, and the summary and report of the search
+    are written all the same; the summary then holds ``posterior_error``.
     """
     out = Path(out)
     search_info = {
@@ -75,20 +81,33 @@ def finish(cal: Any, result: Any, out: Path, executor: Any = None) -> dict[str, 
         "best_coefficients": result.best_coefficients,
         "n_trials": result.n_trials,
         "n_failed": result.n_failed,
+        "stop_detail": getattr(result, "stop_detail", ""),
         "finished": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime()),
     }
     _atomic_text(out / SEARCH_FILE, json.dumps(_clean(search_info), indent=2))
     post_cfg = cal.config.section("posterior")
     notes: list[str] = []
     n_ok = int((result.trials["status"] == "ok").sum()) if len(result.trials) else 0
-    if post_cfg["enabled"] and n_ok >= MIN_OK_TRIALS_FOR_POSTERIOR:
-        _posterior_products(cal, result, out, executor, notes)
+    need = max(MIN_OK_TRIALS_FOR_POSTERIOR, len(cal.problem.names) + 2)  # the sampler's d + 2
+    error = None
+    if skip_posterior and post_cfg["enabled"]:
+        notes.append(f"posterior skipped: {skip_posterior}")
+    elif post_cfg["enabled"] and n_ok >= need:
+        try:
+            _posterior_products(cal, result, out, executor, notes)
+        except Exception as exc:  # keep the search's summary and report whatever happens
+            error = f"{type(exc).__name__}: {exc}"
+            notes.append(f"posterior failed: {error}")
     elif post_cfg["enabled"]:
-        notes.append(f"posterior skipped: only {n_ok} successful trials "
-                     f"(at least {MIN_OK_TRIALS_FOR_POSTERIOR} needed)")
+        error = (f"only {n_ok} successful trials, at least d + 2 = {need} needed; "
+                 "raise the search budget and resume")
+        notes.append(f"posterior skipped: {error}")
     if notes:
         _atomic_text(out / "notes.json", json.dumps(notes, indent=2))
-    return write_outputs(out, cal=cal)
+    summary = write_outputs(out, cal=cal)
+    if error is not None and n_ok:
+        summary["posterior_error"] = error
+    return summary
 
 
 def _posterior_products(cal: Any, result: Any, out: Path, executor: Any, notes: list[str]) -> None:
@@ -173,6 +192,7 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
         "n_trials": len(trials),
         "n_failed": int((trials["status"] != "ok").sum()),
         "stop_reason": search_info.get("stop_reason", "not finished (no search.json)"),
+        "stop_detail": search_info.get("stop_detail") or "",
         "trial_log": "trials.parquet",
         "posterior": None,
         "bands_files": {},

@@ -53,6 +53,9 @@ class BuiltinSolverModel(ForwardModel):
 
     name = "builtin-solver"
 
+    #: Scalar observables this model produces (checked against the data before any run).
+    scalar_names: tuple[str, ...] = tuple(SCALAR_FROM_GLOBAL.values())
+
     def __init__(self, device: Any = None, settings: Any = None) -> None:
         from ..solver import SolverSettings, demo_device
 

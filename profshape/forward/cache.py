@@ -1,17 +1,23 @@
 """A result cache for forward runs, on disk, shared by processes.
 
 Results are keyed by the forward model's :meth:`~profshape.forward.base.ForwardModel.cache_key`
-(model identity, version and settings), the operating point and the profile's
-coefficients, so re-running or resuming a search does not recompute a run.
+(model identity, version and settings), the operating point, the profile's
+coefficients and the full definition of the shape family that made it (its
+class, options, domain, nodes, reference table and bounds), so re-running or
+resuming a search does not recompute a run, and two families of the same name
+with other options never share an entry.
 Each entry is one JSON file ``<sha256>.json``, written atomically, so worker
 processes and cluster workers sharing the folder can use it at once.
 """
 
 from __future__ import annotations
 
+import dataclasses
+import functools
 import hashlib
 import json
 import os
+import pickle
 from pathlib import Path
 from typing import Any
 
@@ -22,19 +28,101 @@ from ..profile import AnomalousProfile
 from ..trials import atomic_write_bytes
 from .base import ForwardModel, Prediction
 
-__all__ = ["CachedModel", "cache_key_for"]
+__all__ = ["CachedModel", "cache_key_for", "family_definition"]
+
+
+def _canonical(obj: Any, depth: int = 0) -> Any:
+    """A JSON-ready, order-stable description of ``obj`` (floats exact, by repr)."""
+    if depth > 12:
+        raise ValueError("definition nested too deep")
+    if obj is None or isinstance(obj, (bool, str)):
+        return obj
+    if isinstance(obj, (int, np.integer)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        return repr(float(obj))
+    if isinstance(obj, np.ndarray):
+        return {"array": [repr(float(x)) for x in np.asarray(obj, dtype=float).ravel()],
+                "shape": list(obj.shape)}
+    if isinstance(obj, (list, tuple)):
+        return [_canonical(v, depth + 1) for v in obj]
+    if isinstance(obj, dict):
+        return {str(k): _canonical(v, depth + 1) for k, v in sorted(obj.items(), key=str)}
+    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        return {"type": type(obj).__qualname__,
+                **{f.name: _canonical(getattr(obj, f.name), depth + 1)
+                   for f in dataclasses.fields(obj)}}
+    if callable(obj) and hasattr(obj, "__qualname__"):
+        return f"{getattr(obj, '__module__', '')}.{obj.__qualname__}"
+    if hasattr(obj, "__dict__"):
+        return {"type": f"{type(obj).__module__}.{type(obj).__qualname__}",
+                **{k: _canonical(v, depth + 1) for k, v in sorted(vars(obj).items())}}
+    raise ValueError(f"cannot describe {type(obj).__name__}")
+
+
+def family_definition(family: Any) -> str:
+    """SHA-256 of a shape family's full definition: class, options, domain, bounds.
+
+    Two families with the same name but other options (domain length, nodes,
+    reference table, bounds) give different definitions.
+    """
+    text = json.dumps(_canonical(family), sort_keys=True)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def _profile_definition(profile: AnomalousProfile) -> str | None:
+    """Definition of what makes the profile's function, or None if it cannot be told."""
+    from ..shapes import ShapeFamily
+
+    parts: list[str] = []
+    stack: list[Any] = [profile.function]
+    while stack:
+        f = stack.pop()
+        if isinstance(f, functools.partial):
+            parts.append(f"{getattr(f.func, '__module__', '')}.{getattr(f.func, '__qualname__', '')}")
+            for arg in f.args:
+                if isinstance(arg, ShapeFamily):
+                    try:
+                        parts.append(family_definition(arg))
+                    except ValueError:
+                        return _pickled(profile.function)
+                elif callable(arg):
+                    stack.append(arg)
+                else:
+                    try:
+                        parts.append(json.dumps(_canonical(arg), sort_keys=True))
+                    except ValueError:
+                        return _pickled(profile.function)
+        else:
+            return _pickled(profile.function)
+    return hashlib.sha256("|".join(parts).encode()).hexdigest()
+
+
+def _pickled(function: Any) -> str | None:
+    try:
+        return hashlib.sha256(pickle.dumps(function, protocol=4)).hexdigest()
+    except Exception:  # not picklable: the key could not be trusted, so do not cache
+        return None
 
 
 def cache_key_for(model: ForwardModel, profile: AnomalousProfile, point: OperatingPoint
                   ) -> str | None:
-    """SHA-256 key of a run, or ``None`` when the profile carries no coefficients."""
+    """SHA-256 key of a run, or ``None`` when it cannot be keyed safely.
+
+    ``None`` when the profile carries no coefficients, or when what makes its
+    function (the shape family with its options) cannot be described.
+    """
     if not profile.coefficients:
+        return None
+    definition = _profile_definition(profile)
+    if definition is None:
         return None
     payload = {
         "model": model.cache_key(),
         "point": point.to_dict(),
         "kind": profile.kind,
         "family": profile.family,
+        "definition": definition,
         "coefficients": {k: repr(float(v)) for k, v in sorted(profile.coefficients.items())},
     }
     text = json.dumps(payload, sort_keys=True)
