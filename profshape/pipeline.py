@@ -92,7 +92,9 @@ class Calibration:
 def _propellant(cfg: CalibrationConfig, key: str, entry: dict[str, Any]) -> str:
     """The point's propellant; xenon, with a warning, when the file names none."""
     if entry.get("propellant") is None:
-        warnings.warn(f"{cfg.path}: {key} gives no propellant; using xenon. Write "
+        from .config import _one_based
+
+        warnings.warn(f"{cfg.path}: {_one_based(key)} gives no propellant; using xenon. Write "
                       "propellant = \"xenon\" (or another) to silence this.",
                       ProfshapeWarning, stacklevel=3)
         return "xenon"

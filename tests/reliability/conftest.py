@@ -37,7 +37,16 @@ TALLY_LINES = (
     ("bad_inputs_refused", "bad inputs refused with a clear error"),
     ("property_refused", "generated inputs (hypothesis) refused with InputDataError"),
     ("escapes_refused", "external-adapter escape attempts refused"),
+    ("zero_misfit_runs", "zero- and tiny-misfit runs finished and logged"),
+    ("flat_objective_runs", "flat-objective runs warned (no posterior on them)"),
+    ("nothing_succeeded_runs", "campaigns where nothing succeeded ended non-zero with the cause"),
+    ("worker_deaths_survived", "worker deaths survived in a command-line campaign"),
+    ("concurrent_writers_refused", "concurrent writers refused (holder named)"),
+    ("floods_bounded", "output floods bounded (stderr, output.json, tables)"),
+    ("daemons_reaped", "daemons (setsid + fork) reaped"),
+    ("sigterm_survived", "SIGTERM interruptions stopped cleanly with the resume hint"),
 )
+_FIGURES: dict[str, str] = {}
 
 
 class Tally:
@@ -46,6 +55,10 @@ class Tally:
     def add(self, key: str, n: int = 1) -> None:
         """Add ``n`` to counter ``key``."""
         _TALLY[key] += int(n)
+
+    def figure(self, label: str, value: str) -> None:
+        """A measured figure printed after the counts (e.g. a peak memory)."""
+        _FIGURES[label] = value
 
 
 @pytest.fixture(scope="session")
@@ -104,11 +117,10 @@ def pytest_terminal_summary(terminalreporter, exitstatus, config):
         return
     tr = terminalreporter
     tr.section("profshape reliability tally")
-    for key, label in TALLY_LINES:
-        tr.write_line(f"{label}: {_TALLY.get(key, 0)}")
+    lines = [f"{label}: {_TALLY.get(key, 0)}" for key, label in TALLY_LINES]
+    lines += [f"{label}: {value}" for label, value in sorted(_FIGURES.items())]
+    for line in lines:
+        tr.write_line(line)
     out = os.environ.get("PROFSHAPE_TALLY_FILE")
     if out:
-        Path(out).write_text(
-            "\n".join(f"{label}: {_TALLY.get(key, 0)}" for key, label in TALLY_LINES) + "\n",
-            encoding="utf-8",
-        )
+        Path(out).write_text("\n".join(lines) + "\n", encoding="utf-8")

@@ -32,12 +32,14 @@ title = "reliability bad-input base"
 label = "300V"
 discharge_voltage_V = 300.0
 anode_mass_flow_kg_s = 4.5e-6
+propellant = "xenon"
 ion_velocity_file = "lif_300.csv"
 
 [[operating_points]]
 label = "250V"
 discharge_voltage_V = 250.0
 anode_mass_flow_kg_s = 4.5e-6
+propellant = "xenon"
 ion_velocity_file = "lif_250.csv"
 
 [shape]
@@ -147,11 +149,11 @@ CASES = [
     ("bounds-nan", _toml("[0.015, 0.038]", "[nan, 0.038]"), None, "transition_z_m"),
     ("bounds-unknown-parameter", _toml("transition_z_m =", "transition_place_m ="), None, "transition_place_m"),
     ("bounds-not-a-pair", _toml("[0.015, 0.038]", "[0.015]"), None, "must be [lower, upper]"),
-    ("bounds-start-outside", _toml("[forward_model]", "[[shape.start]]\nlog10_inner_level = -2.5\nlog10_outer_level = -1.0\ntransition_z_m = 0.9\ntransition_width_m = 0.004\n\n[forward_model]"), None, "shape.start[0]"),
+    ("bounds-start-outside", _toml("[forward_model]", "[[shape.start]]\nlog10_inner_level = -2.5\nlog10_outer_level = -1.0\ntransition_z_m = 0.9\ntransition_width_m = 0.004\n\n[forward_model]"), None, "shape.start[1]"),
     # ------------------------------------------------------- operating points
-    ("point-negative-voltage", _toml("discharge_voltage_V = 300.0", "discharge_voltage_V = -300.0"), None, "operating_points[0]"),
+    ("point-negative-voltage", _toml("discharge_voltage_V = 300.0", "discharge_voltage_V = -300.0"), None, "operating_points[1]"),
     ("point-zero-flow", _toml("anode_mass_flow_kg_s = 4.5e-6", "anode_mass_flow_kg_s = 0.0"), None, "anode_mass_flow_kg_s"),
-    ("point-unknown-propellant", _toml('label = "300V"', 'label = "300V"\npropellant = "unobtainium"'), None, "unobtainium"),
+    ("point-unknown-propellant", _toml('propellant = "xenon"', 'propellant = "unobtainium"'), None, "unobtainium"),
     ("point-duplicate-label", _toml('label = "250V"', 'label = "300V"'), None, "300V"),
     ("point-empty-label", _toml('label = "250V"', 'label = ""'), None, "label"),
     ("point-zero-field-scale", _toml('label = "300V"', 'label = "300V"\nmagnetic_field_scale = 0.0'), None, "magnetic_field_scale"),
