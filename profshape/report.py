@@ -308,7 +308,8 @@ def _figures(out: Path, cal: Any, trials: pd.DataFrame, posterior: Any, bands: A
     for name, job in jobs.items():
         paths = [folder / f"{name}.{fmt}" for fmt in formats]
         try:
-            fig = job(paths)
+            with np.errstate(divide="ignore", invalid="ignore"):  # e.g. no successful trial
+                fig = job(paths)
         except Exception as exc:  # a figure is a view of saved numbers; never lose the run to it
             warnings.warn(f"figure {name!r} not drawn: {type(exc).__name__}: {exc}",
                           ProfshapeWarning, stacklevel=2)
