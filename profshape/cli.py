@@ -61,7 +61,8 @@ def _signals_and_warnings() -> Iterator[None]:
 
 
 def _err(message: str) -> None:
-    print(f"profshape: error: {message}", file=sys.stderr)
+    one_line = " ".join(str(message).splitlines())  # a library's multi-line text on one line
+    print(f"profshape: error: {one_line}", file=sys.stderr)
 
 
 def demo_config_text(budget: int | None = None, seed: int | None = None,

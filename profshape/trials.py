@@ -412,7 +412,28 @@ class TrialLog:
             raise InputDataError(
                 f"cannot resume: the sidecar {str(self.sidecar)!r} of the trial log is missing."
             )
-        return json.loads(self.sidecar.read_text(encoding="utf-8"))
+        try:
+            data = json.loads(self.sidecar.read_text(encoding="utf-8"))
+        except (OSError, UnicodeDecodeError, ValueError) as exc:
+            raise InputDataError(
+                f"cannot resume: the sidecar {str(self.sidecar)!r} of the trial log is damaged "
+                f"({type(exc).__name__}: {exc}); restore it, or start the calibration anew in "
+                "another folder."
+            ) from None
+        missing = [k for k in ("names", "settings", "state") if not isinstance(data, dict)
+                   or k not in data]
+        state = data.get("state") if isinstance(data, dict) else None
+        if not missing and not (isinstance(state, dict) and {"next_trial", "next_batch", "n_sobol",
+                                                             "n_user"} <= set(state)):
+            missing = ["state"]
+        if missing:
+            version = data.get("version", "?") if isinstance(data, dict) else "?"
+            raise InputDataError(
+                f"cannot resume: the sidecar {str(self.sidecar)!r} lacks {missing} (written by "
+                f"profshape {version}; this is {__version__}); resume it with the version that "
+                "wrote it, or start anew in another folder."
+            )
+        return data
 
 
 def nan_if_inf(x: float) -> float:

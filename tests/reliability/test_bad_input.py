@@ -287,3 +287,155 @@ def test_a_refused_start_does_not_block_the_corrected_file(tmp_path, capsys, tal
     bad = _write_case(tmp_path, CASES[31][1](BASE))
     _refused(capsys, ["calibrate", str(bad), "--out", str(out), "--quiet"],
              "holds another calibration", tally)
+
+
+# ------------------------------------------------------------------ round two
+_POSTERIOR_ON = "enabled = true\nn_steps = 100\nburn_in = 20\n"
+CASES_TWO = [
+    ("size-grid-points", _toml("timeout_s = 10", "timeout_s = 10\ngrid_points = 3000000000"), None, "forward_model.grid_points"),
+    ("size-budget", _toml("budget = 4", "budget = 10000000"), None, "search.budget"),
+    ("size-workers", _toml("[posterior]", "[workers]\nn_workers = 100000\n\n[posterior]"), None, "workers.n_workers"),
+    ("size-solver-cells", lambda t: _toml('kind = "external"', 'kind = "builtin"\nsolver.n_cells = 2000000')(t).replace("[shape]\n", '[device]\npreset = "demo"\n\n[shape]\n', 1), None, "n_cells"),
+    ("weight-as-text", _toml("[search]", '[likelihood]\nweights = { ion_velocity = "heavy" }\n\n[search]'), None, "likelihood.weights.ion_velocity"),
+    ("fit-discrepancy-three", _toml("[search]", "[likelihood]\nfit_discrepancy_m_s = [10.0, 100.0, 1000.0]\n\n[search]"), None, "likelihood.fit_discrepancy_m_s"),
+    ("start-as-string", _toml("[forward_model]", '[[shape.start]]\nlog10_inner_level = "low"\n\n[forward_model]'), None, "shape.start[1].log10_inner_level"),
+    ("start-table-as-string", _toml('family = "smooth_step"', 'family = "smooth_step"\nstart = "my hand-tuned one"'), None, "shape.start"),
+    ("seed-huge", _toml("seed = 0", "seed = 100000000000000000000"), None, "search.seed"),
+    ("reference-garbage", _toml('family = "smooth_step"', 'family = "scaled_reference"\noptions = { reference_file = "ref.csv" }'), lambda f: (f / "ref.csv").write_bytes(bytes(range(256)) * 8), "reference_file"),
+    ("figures-unknown", _toml("[posterior]", '[output]\nfigures = ["exe"]\n\n[posterior]'), None, "output.figures[1]"),
+    ("posterior-zero-walkers", _toml("enabled = false", _POSTERIOR_ON + "n_walkers = 0"), None, "posterior.n_walkers"),
+    ("posterior-few-walkers", _toml("enabled = false", _POSTERIOR_ON + "n_walkers = 4"), None, "2 * d = 8"),
+    ("posterior-burn-in", _toml("enabled = false", "enabled = true\nn_steps = 100\nburn_in = 200"), None, "posterior.burn_in"),
+    ("scalar-typo", _toml('ion_velocity_file = "lif_300.csv"', 'ion_velocity_file = "lif_300.csv"\nscalars.dischrge_current = { value = 0.3, sigma = 0.01 }'), None, "did you mean 'discharge_current'"),
+    ("key-typo-suggestion", _toml("[search]", "[search]\nbugdet = 3"), None, "did you mean 'budget'"),
+    ("table-typo-suggestion", _toml("[search]", "[serach]\nbudget = 3\n\n[search]"), None, "did you mean 'search'"),
+    ("grid-range-inverted", _toml("timeout_s = 10", "timeout_s = 10\ngrid_z_m = [0.06, 0.0]"), None, "forward_model.grid_z_m"),
+    ("stop-after-negative", _toml("seed = 0", "seed = 0\nstop_after_failures = -1"), None, "stop_after_failures"),
+]
+
+
+@pytest.mark.parametrize("case", CASES_TWO, ids=[c[0] for c in CASES_TWO])
+def test_refused_at_the_door(case, tmp_path, capsys, tally):
+    """Round two: sizes, values and posterior settings refused before any forward run."""
+    _, edit_toml, edit_folder, fragment = case
+    path = _write_case(tmp_path, edit_toml(BASE) if edit_toml else BASE)
+    if edit_folder:
+        edit_folder(tmp_path)
+    out = tmp_path / "out"
+    _refused(capsys, ["calibrate", str(path), "--out", str(out), "--quiet"], fragment, tally)
+    assert not (out / "trials.parquet").exists()
+    assert not (out / "work").exists() or not any((out / "work").iterdir())  # no forward run
+
+
+@pytest.fixture(scope="module")
+def finished_folder(tmp_path_factory):
+    """A small finished calibration folder to damage (a copy per test)."""
+    folder = tmp_path_factory.mktemp("finished")
+    path = _write_case(folder, BASE)
+    assert main(["calibrate", str(path), "--out", str(folder / "out"), "--quiet"]) == 0
+    return folder
+
+
+def _damaged(finished_folder, tmp_path, damage):
+    import shutil
+
+    case = tmp_path / "case"
+    shutil.copytree(finished_folder, case)
+    out = case / "out"
+    info = json.loads((out / "run.json").read_text())
+    info["base_dir"] = str(case)
+    (out / "run.json").write_text(json.dumps(info))
+    damage(out)
+    return out
+
+
+def _truncate(name, keep=0.5):
+    def damage(out):
+        data = (out / name).read_bytes()
+        (out / name).write_bytes(data[: int(len(data) * keep)])
+    return damage
+
+
+def _other_version(out):
+    side = json.loads((out / "trials.parquet.json").read_text())
+    side["version"] = "0.0.1"
+    del side["state"]
+    (out / "trials.parquet.json").write_text(json.dumps(side))
+
+
+@pytest.mark.parametrize("damage, fragment", [
+    (_truncate("trials.parquet"), "trials.parquet"),
+    (_truncate("trials.parquet.json", 0.0), "trials.parquet.json"),
+    (_truncate("run.json", 0.6), "run.json"),
+    (_other_version, "trials.parquet.json"),
+], ids=["truncated-log", "empty-sidecar", "broken-run-json", "other-version-sidecar"])
+def test_damaged_folder_on_resume(damage, fragment, finished_folder, tmp_path, capsys, tally):
+    out = _damaged(finished_folder, tmp_path, damage)
+    message = _refused(capsys, ["resume", str(out), "--quiet"], fragment, tally)
+    assert "Traceback" not in message
+
+
+def test_bom_in_calibration_file_is_accepted(tmp_path):
+    from profshape.config import load_config
+
+    path = _write_case(tmp_path, BASE)
+    path.write_bytes(b"\xef\xbb\xbf" + path.read_bytes())
+    assert load_config(path).data["title"] == "reliability bad-input base"
+
+
+def test_both_csv_and_parquet_are_ambiguous(tmp_path, capsys, tally):
+    from profshape.demo import demo_data_folder
+
+    data = tmp_path / "data"
+    data.mkdir()
+    for f in demo_data_folder().glob("*.csv"):
+        (data / f.name).write_bytes(f.read_bytes())
+    pd.read_csv(data / "ion_velocity.csv").to_parquet(data / "ion_velocity.parquet")
+    text = BASE.split("[[operating_points]]")[0] + 'data_folder = "data"\n\n[shape]' + BASE.split("[shape]")[1]
+    path = _write_case(tmp_path, text)
+    _refused(capsys, ["calibrate", str(path), "--out", str(tmp_path / "out"), "--quiet"],
+             "both ion_velocity.csv and ion_velocity.parquet are present", tally)
+
+
+def test_implausible_values_are_warned(tmp_path):
+    from profshape.config import load_config
+    from profshape.exceptions import ImplausibleValueWarning
+    from profshape.pipeline import build_calibration
+
+    text = BASE.replace("discharge_voltage_V = 250.0", "discharge_voltage_V = 1e30").replace(
+        'ion_velocity_file = "lif_300.csv"',
+        'ion_velocity_file = "lif_300.csv"\nscalars.thrust = { value = 91.3, sigma = 1.8 }')
+    path = _write_case(tmp_path, text)
+    df = _lif(300.0)
+    df.loc[3, "sigma_ion_velocity_m_s"] = 1e300
+    df.to_csv(tmp_path / "lif_300.csv", index=False)
+    with pytest.warns(ImplausibleValueWarning) as record:
+        build_calibration(load_config(path), tmp_path / "out", progress=False)
+    text = " | ".join(str(w.message) for w in record)
+    assert "discharge_voltage_V = 1e+30 is outside the plausible range" in text
+    assert "sigma_ion_velocity_m_s up to 1e+300" in text
+    assert "scalar thrust = 91.3 is outside the plausible range [1e-06, 10]" in text
+
+
+def test_propellant_fallback_is_warned(tmp_path):
+    from profshape.config import load_config
+    from profshape.exceptions import ProfshapeWarning
+    from profshape.pipeline import build_calibration
+
+    path = _write_case(tmp_path, BASE.replace('propellant = "xenon"\n', "", 1))
+    with pytest.warns(ProfshapeWarning, match=r"operating_points\[1\] gives no propellant; using xenon"):
+        build_calibration(load_config(path), tmp_path / "out", progress=False)
+
+
+def test_profile_grid_without_a_device(tmp_path):
+    """grid_z_m and grid_points set the external program's grid; grid_points is never ignored."""
+    from profshape.config import load_config
+    from profshape.pipeline import build_calibration
+
+    path = _write_case(tmp_path, BASE.replace("timeout_s = 10", "timeout_s = 10\ngrid_points = 51"))
+    grid = build_calibration(load_config(path), tmp_path / "a", progress=False).problem.forward_model.grid(None)
+    assert grid.size == 51 and grid[0] == 0.0 and grid[-1] == pytest.approx(0.0625)
+    path = _write_case(tmp_path, BASE.replace(
+        "timeout_s = 10", "timeout_s = 10\ngrid_points = 101\ngrid_z_m = [0.0, 0.07]"))
+    grid = build_calibration(load_config(path), tmp_path / "b", progress=False).problem.forward_model.grid(None)
+    assert grid.size == 101 and grid[-1] == pytest.approx(0.07)
