@@ -188,6 +188,11 @@ def _family(cfg: CalibrationConfig, device: Any) -> ShapeFamily:
         options.setdefault("channel_length_m", device.channel_length_m)
         if shape["family"] == "log_spline":
             options.setdefault("domain_length_m", device.domain_length_m)
+    elif shape["family"] != "scaled_reference" and "channel_length_m" not in options:
+        warnings.warn(f"{cfg.path}: no [device] and no shape.options.channel_length_m: the "
+                      f"default bounds of {shape['family']!r} assume a channel length of "
+                      "0.025 m. Give options = { channel_length_m = ... } (your channel's "
+                      "length [m]) or explicit bounds.", ProfshapeWarning, stacklevel=3)
     if shape["family"] == "scaled_reference":
         ref = options.pop("reference_file", None)
         if ref is None:

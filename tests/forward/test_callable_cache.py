@@ -70,3 +70,33 @@ def test_cache_hits_across_instances_and_version_misses(tmp_path):
     m(PROFILE, OperatingPoint("250V", 250.0, 4.5e-6))
     CachedModel(CallableModel(counted, version="2"), tmp_path)(PROFILE, POINT)
     assert len(CALLS) == 4
+
+
+def _value_at_30mm(profile, point):
+    """A model whose scalar output is the profile at z = 0.03 m."""
+    z = np.linspace(0.0, 0.06, 7)
+    return {"z_m": z, "ion_velocity_m_s": 1e4 + z, "scalars": {"level": float(profile(np.array([0.03]))[0])}}
+
+
+def test_cache_key_holds_the_family_definition(tmp_path):
+    """Issue 12, bug 1: two log_spline(5) families with other domain lengths, same coefficients.
+
+    Their profiles differ at z = 0.03 m, so a shared cache folder must not return one's
+    result for the other. Reference values: PCHIP through the nodes (scipy's
+    PchipInterpolator as the reference implementation), in log10.
+    """
+    from scipy.interpolate import PchipInterpolator
+
+    from profshape.shapes import get_family
+
+    levels = np.array([-2.0, -2.0, -2.4, -1.0, -1.0])
+    results = {}
+    for domain in (0.06, 0.10):
+        family = get_family("log_spline", n_nodes=5, domain_length_m=domain)
+        model = CachedModel(CallableModel(_value_at_30mm, name="probe", version="1"), tmp_path)
+        pred = model(family.profile(levels), POINT)
+        expected = 10 ** PchipInterpolator(np.linspace(0.0, domain, 5), levels)(0.03)
+        assert pred.scalars["level"] == pytest.approx(expected, rel=1e-9)
+        results[domain] = pred.scalars["level"]
+        assert model.misses == 1  # the second family is not answered from the first's entry
+    assert results[0.06] != pytest.approx(results[0.10], rel=1e-3)

@@ -44,6 +44,7 @@ ion_velocity_file = "lif_250.csv"
 
 [shape]
 family = "smooth_step"
+options = { channel_length_m = 0.024 }
 
 [shape.bounds]
 transition_z_m = [0.015, 0.038]
@@ -301,7 +302,7 @@ CASES_TWO = [
     ("start-as-string", _toml("[forward_model]", '[[shape.start]]\nlog10_inner_level = "low"\n\n[forward_model]'), None, "shape.start[1].log10_inner_level"),
     ("start-table-as-string", _toml('family = "smooth_step"', 'family = "smooth_step"\nstart = "my hand-tuned one"'), None, "shape.start"),
     ("seed-huge", _toml("seed = 0", "seed = 100000000000000000000"), None, "search.seed"),
-    ("reference-garbage", _toml('family = "smooth_step"', 'family = "scaled_reference"\noptions = { reference_file = "ref.csv" }'), lambda f: (f / "ref.csv").write_bytes(bytes(range(256)) * 8), "reference_file"),
+    ("reference-garbage", _toml('family = "smooth_step"\noptions = { channel_length_m = 0.024 }', 'family = "scaled_reference"\noptions = { reference_file = "ref.csv" }'), lambda f: (f / "ref.csv").write_bytes(bytes(range(256)) * 8), "reference_file"),
     ("figures-unknown", _toml("[posterior]", '[output]\nfigures = ["exe"]\n\n[posterior]'), None, "output.figures[1]"),
     ("posterior-zero-walkers", _toml("enabled = false", _POSTERIOR_ON + "n_walkers = 0"), None, "posterior.n_walkers"),
     ("posterior-few-walkers", _toml("enabled = false", _POSTERIOR_ON + "n_walkers = 4"), None, "2 * d = 8"),
@@ -432,10 +433,24 @@ def test_profile_grid_without_a_device(tmp_path):
     from profshape.config import load_config
     from profshape.pipeline import build_calibration
 
-    path = _write_case(tmp_path, BASE.replace("timeout_s = 10", "timeout_s = 10\ngrid_points = 51"))
+    path = _write_case(tmp_path, BASE.replace("timeout_s = 10", "timeout_s = 10\ngrid_points = 51")
+                       .replace("options = { channel_length_m = 0.024 }\n", ""))
+    with pytest.warns(UserWarning, match=r"assume a channel length of 0.025 m"):
+        build_calibration(load_config(path), tmp_path / "c", progress=False)
     grid = build_calibration(load_config(path), tmp_path / "a", progress=False).problem.forward_model.grid(None)
     assert grid.size == 51 and grid[0] == 0.0 and grid[-1] == pytest.approx(0.0625)
     path = _write_case(tmp_path, BASE.replace(
         "timeout_s = 10", "timeout_s = 10\ngrid_points = 101\ngrid_z_m = [0.0, 0.07]"))
     grid = build_calibration(load_config(path), tmp_path / "b", progress=False).problem.forward_model.grid(None)
     assert grid.size == 101 and grid[-1] == pytest.approx(0.07)
+
+
+def test_accepted_figure_formats_are_written_by_matplotlib():
+    """Every format the door accepts is one matplotlib can write (its own list as reference)."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    from profshape.config import FIGURE_FORMATS
+
+    supported = FigureCanvasAgg(Figure()).get_supported_filetypes()
+    assert set(FIGURE_FORMATS) <= set(supported), set(FIGURE_FORMATS) - set(supported)

@@ -50,6 +50,7 @@ ion_velocity_file = "lif_250.csv"
 
 [shape]
 family = "smooth_step"
+options = { channel_length_m = 0.024 }
 bounds.transition_z_m = [0.015, 0.038]
 
 [forward_model]
