@@ -25,7 +25,7 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
-import _fault_program as fp  # noqa: E402  (the clean model, standard library only)
+import _fault_program as fp  # the clean model, standard library only
 
 
 def _clean(folder: Path, spec: dict) -> None:

@@ -139,11 +139,9 @@ def test_campaign_under_fire(tmp_path, capsys, tally):
         assert main(["report", str(out)]) == 0
         capsys.readouterr()
         # --- kill a busy pool worker; the campaign replaces its pool and goes on
-        worker = None
-        assert _wait(lambda: (worker := _busy_worker(proc)) is not None, 60, proc)
-        worker = _busy_worker(proc)
-        assert worker is not None
-        worker.kill()
+        busy: list[psutil.Process] = []
+        assert _wait(lambda: busy.append(_busy_worker(proc)) or busy[-1] is not None, 60, proc)
+        busy[-1].kill()
         assert _wait(lambda: any("worker process died" in e for e in read_trials(log)["error"]),
                      60, proc), err_path.read_text()[-2000:]
         n_then = _n_logged(log)
