@@ -564,8 +564,9 @@ def run_calibration(cfg: CalibrationConfig, out_dir: str | Path, *, resume: bool
         flat = _flat_objective(result.trials) if result.best_trial is not None else None
         if flat:
             warnings.warn(flat, FlatObjectiveWarning, stacklevel=2)
+        n_ok = int((result.trials["status"] == "ok").sum())
         if executor is None and cal.posterior_settings is not None and not flat \
-                and result.best_trial is not None:
+                and n_ok >= cal.problem.dim + 2:  # the posterior will run: give it a pool
             from .executors import local_executor
 
             executor = stack.enter_context(local_executor(cfg.section("workers")["n_workers"]))
