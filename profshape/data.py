@@ -533,6 +533,14 @@ def _find(folder: Path, stem: str) -> Path | None:
             f"{folder}: both {stem}.csv and {stem}.parquet are present; which one holds the data "
             "is ambiguous. Keep one of them (move the other out of the folder)."
         )
+    if not found:  # a near miss of the table's name is a typo, not an absent table
+        others = [p.stem for p in folder.iterdir() if p.suffix.lower() in (".csv", ".parquet")]
+        near = difflib.get_close_matches(stem, others, n=1, cutoff=0.8)
+        if near:
+            raise InputDataError(
+                f"{folder}: no {stem}.csv or {stem}.parquet, but there is {near[0]!r} (did you "
+                f"mean {stem!r}?); rename it, or move it out of the folder."
+            )
     return found[0] if found else None
 
 

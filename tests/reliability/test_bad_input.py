@@ -398,6 +398,19 @@ def test_both_csv_and_parquet_are_ambiguous(tmp_path, capsys, tally):
              "both ion_velocity.csv and ion_velocity.parquet are present", tally)
 
 
+def test_misspelt_table_name_gets_a_suggestion(tmp_path, capsys, tally):
+    from profshape.demo import demo_data_folder
+
+    data = tmp_path / "data"
+    data.mkdir()
+    for f in demo_data_folder().glob("*.csv"):
+        (data / f.name.replace("ion_velocity", "ion_velocty")).write_bytes(f.read_bytes())
+    text = BASE.split("[[operating_points]]")[0] + 'data_folder = "data"\n\n[shape]' + BASE.split("[shape]")[1]
+    path = _write_case(tmp_path, text)
+    _refused(capsys, ["calibrate", str(path), "--out", str(tmp_path / "out"), "--quiet"],
+             "there is 'ion_velocty' (did you mean 'ion_velocity'?)", tally)
+
+
 def test_implausible_values_are_warned(tmp_path):
     from profshape.config import load_config
     from profshape.exceptions import ImplausibleValueWarning
