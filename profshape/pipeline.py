@@ -46,7 +46,7 @@ from .likelihood import LikelihoodSettings
 from .operating_point import OperatingPoint
 from .problem import CalibrationProblem
 from .shapes import ShapeFamily, get_family
-from .trials import sidecar_path
+from .trials import journal_path, sidecar_path
 
 __all__ = [
     "Calibration",
@@ -426,7 +426,8 @@ def open_output_folder(cfg: CalibrationConfig, out_dir: str | Path, resume: bool
             raise InputDataError(f"{run_file} is unreadable; choose another output folder.") from None
         # a start refused for bad input before any search began holds no result: reuse it
         refused_start = not resume and not any(
-            p.exists() for p in (out / TRIALS_FILE, sidecar_path(out / TRIALS_FILE)))
+            p.exists() for p in (out / TRIALS_FILE, sidecar_path(out / TRIALS_FILE),
+                                 journal_path(out / TRIALS_FILE)))
         if info.get("fingerprint") != fp and not refused_start:
             raise InputDataError(
                 f"output folder {out} holds another calibration (its {CONFIG_COPY} differs); "
