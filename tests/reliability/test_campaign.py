@@ -126,7 +126,8 @@ def test_campaign_under_fire(tmp_path, capsys, tally):
                                  "--out", str(out), "--quiet"],
                                 stdout=subprocess.DEVNULL, stderr=err)
     try:
-        assert _wait(lambda: _n_logged(log) >= 1, 120, proc), err_path.read_text()[-2000:]
+        assert _wait(lambda: _n_logged(log) >= 1 and log.exists(), 120, proc), \
+            err_path.read_text()[-2000:]
         # --- a second writer is refused, naming the holder; report is allowed
         for argv in (["calibrate", str(cal), "--out", str(out), "--quiet"],
                      ["resume", str(out), "--quiet"]):
