@@ -19,7 +19,8 @@ from typing import Any
 
 from .exceptions import ConfigError, InputDataError
 
-__all__ = ["FIGURE_FORMATS", "MAXIMA", "CalibrationConfig", "load_config", "parse_config"]
+__all__ = ["FIGURE_FORMATS", "MAXIMA", "CalibrationConfig", "did_you_mean", "load_config",
+           "parse_config"]
 
 _NUMBER = (int, float)
 

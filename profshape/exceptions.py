@@ -11,6 +11,7 @@ __all__ = [
     "ConfigError",
     "ConvergenceWarning",
     "FlatObjectiveWarning",
+    "FolderLockedError",
     "ForwardModelError",
     "ImplausibleValueWarning",
     "InputDataError",
@@ -63,3 +64,7 @@ class FlatObjectiveWarning(ProfshapeWarning):
 
 class ImplausibleValueWarning(ProfshapeWarning):
     """An input value lies outside the physical range stated for it (likely a unit slip)."""
+
+
+class FolderLockedError(InputDataError):
+    """Another process is writing to this output folder (the message names it)."""

@@ -25,15 +25,11 @@ import time
 from collections.abc import Iterator
 from pathlib import Path
 
-from .exceptions import InputDataError
+from .exceptions import FolderLockedError, InputDataError
 
 __all__ = ["LOCK_FILE", "FolderLockedError", "lock_output_folder"]
 
 LOCK_FILE = ".profshape.lock"
-
-
-class FolderLockedError(InputDataError):
-    """Another process is writing to this output folder."""
 
 
 def _holder(fd: int) -> dict:
