@@ -67,7 +67,7 @@ def _cmd_calibrate(args: argparse.Namespace) -> int:
 def _cmd_resume(args: argparse.Namespace) -> int:
     from .pipeline import resume
 
-    summary = resume(args.folder, progress=not args.quiet)
+    summary = resume(args.folder, progress=not args.quiet, budget=args.budget)
     _print_summary(summary, Path(args.folder))
     return EXIT_OK
 
@@ -124,6 +124,8 @@ def _parser() -> argparse.ArgumentParser:
                          description="Continue the calibration in FOLDER: completed trials are "
                                      "kept, those in flight are re-run.")
     res.add_argument("folder", help="output folder of the calibration")
+    res.add_argument("--budget", type=int, help="extend the run to this many trials in all "
+                     "(also a finished run; the posterior and report are redone)")
     res.add_argument("--quiet", action="store_true", help="no progress bar")
     res.set_defaults(func=_cmd_resume)
 

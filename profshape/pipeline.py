@@ -401,7 +401,9 @@ def run_calibration(cfg: CalibrationConfig, out_dir: str | Path, *, resume: bool
         executor = _executor(cfg, stack)
         result = run_search(cal.problem, cal.search_settings, out / TRIALS_FILE,
                             executor=executor, resume=resume)
-        return finish(cal, result, out, executor=executor)
+        summary = finish(cal, result, out, executor=executor)
+    summary["output_folder"] = str(out)  # where it all went (the command line prints it)
+    return summary
 
 
 def calibrate(path: str | Path, out_dir: str | Path | None = None, *, progress: bool = True
@@ -414,9 +416,19 @@ def calibrate(path: str | Path, out_dir: str | Path | None = None, *, progress: 
     return run_calibration(cfg, out, progress=progress)
 
 
-def resume(out_dir: str | Path, *, progress: bool = True) -> dict[str, Any]:
-    """Continue an interrupted calibration from its trial log."""
-    return run_calibration(config_from_folder(out_dir), out_dir, resume=True, progress=progress)
+def resume(out_dir: str | Path, *, progress: bool = True, budget: int | None = None
+           ) -> dict[str, Any]:
+    """Continue an interrupted calibration from its trial log.
+
+    With ``budget``, extend the run to that many trials in all (also a finished
+    one; see :mod:`profshape.extend`); the posterior and outputs are redone.
+    """
+    cfg = config_from_folder(out_dir)
+    if budget is not None:
+        from .extend import extend_budget
+
+        extend_budget(cfg, out_dir, budget)
+    return run_calibration(cfg, out_dir, resume=True, progress=progress)
 
 
 def new_folder_name(prefix: str = "profshape-run") -> Path:

@@ -88,7 +88,8 @@ def finish(cal: Any, result: Any, out: Path, executor: Any = None) -> dict[str, 
                      f"(at least {MIN_OK_TRIALS_FOR_POSTERIOR} needed)")
     if notes:
         _atomic_text(out / "notes.json", json.dumps(notes, indent=2))
-    return write_outputs(out, cal=cal)
+    with _stage_progress(cal, result).timed("report", "drawing the figures, writing summary and report"):
+        return write_outputs(out, cal=cal)
 
 
 def _posterior_products(cal: Any, result: Any, out: Path, executor: Any, notes: list[str]) -> None:
@@ -101,23 +102,39 @@ def _posterior_products(cal: Any, result: Any, out: Path, executor: Any, notes: 
     kwargs = {k: post_cfg[k] for k in keys if post_cfg[k] is not None}
     levels = tuple(float(v) for v in post_cfg["band_levels"])
     settings = PosteriorSettings(seed=seed, band_levels=levels, **kwargs)
+    stages = _stage_progress(cal, result)
+    n_draws = int(post_cfg["n_band_draws"])
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", ProfshapeWarning)
-        posterior = sample_posterior(cal.problem, result.trials, settings, executor=executor)
+        n_post = settings.n_refine_rounds * settings.n_refine_draws + 1 + settings.n_check_draws
+        with stages.executor("posterior", n_post, executor,
+                             "sampling on the surrogate, refinement and check runs") as ex:
+            posterior = sample_posterior(cal.problem, result.trials, settings, executor=ex)
         posterior.save(out / POSTERIOR_DIR)
-        n_draws = int(post_cfg["n_band_draws"])
-        bands = posterior_bands(cal.problem, posterior, levels=levels, n_draws=n_draws,
-                                executor=executor, seed=seed)
+        with stages.executor("bands", n_draws + 1, executor, "posterior draws") as ex:
+            bands = posterior_bands(cal.problem, posterior, levels=levels, n_draws=n_draws,
+                                    executor=ex, seed=seed)
         bands.save(out / BANDS_DIR)
         tables = [bands.scalars.assign(in_data=True, extrapolation=False, extrapolation_reason="")]
         if cal.prediction_points:
-            tables.append(predict_scalars(cal.problem, posterior, cal.prediction_points,
-                                          n_draws=max(n_draws, 1), levels=levels,
-                                          executor=executor, seed=seed))
+            with stages.executor("predictions",
+                                 (max(n_draws, 1) + 1) * len(cal.prediction_points),
+                                 executor, "posterior draws at the prediction points") as ex:
+                tables.append(predict_scalars(cal.problem, posterior, cal.prediction_points,
+                                              n_draws=max(n_draws, 1), levels=levels,
+                                              executor=ex, seed=seed))
         predictions = pd.concat(tables, ignore_index=True)
         predictions.to_csv(out / PREDICTIONS_FILE, index=False)
     notes.extend(f"{type(w.message).__name__}: {w.message}" for w in caught
                  if issubclass(w.category, ProfshapeWarning))
+
+
+def _stage_progress(cal: Any, result: Any) -> Any:
+    from .stages import StageProgress
+
+    settings = getattr(cal, "search_settings", None)
+    return StageProgress(result.trials, getattr(settings, "workers", 1),
+                         bool(getattr(settings, "progress", False)))
 
 
 # ------------------------------------------------------------------ outputs
