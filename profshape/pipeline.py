@@ -242,8 +242,10 @@ def _search_settings(cfg: CalibrationConfig, problem: CalibrationProblem, progre
             raise cfg.error(f"shape.start[{i}]", str(exc)) from None
     kwargs = {k: v for k, v in s.items() if v is not None}
     try:
+        from .workers import slots_in_flight
+
         return SearchSettings(initial_points=starts or None, progress=progress,
-                              n_workers=cfg.section("workers")["n_workers"], **kwargs)
+                              n_workers=slots_in_flight(cfg.section("workers")), **kwargs)
     except InputDataError as exc:
         raise ConfigError(f"{cfg.path}: [search]: {exc}") from None
 
@@ -363,6 +365,10 @@ def config_from_folder(out_dir: str | Path) -> CalibrationConfig:
 # --------------------------------------------------------------- executors
 def _executor(cfg: CalibrationConfig, stack: ExitStack) -> Executor | None:
     workers = cfg.section("workers")
+    if workers.get("kind", "local") != "local":  # SLURM / PBS through dask-jobqueue
+        from .workers import executor_for_config
+
+        return executor_for_config(cfg, stack)
     if workers["scheduler_address"]:
         from distributed import Client
 

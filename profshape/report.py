@@ -86,6 +86,12 @@ def finish(cal: Any, result: Any, out: Path, executor: Any = None) -> dict[str, 
     elif post_cfg["enabled"]:
         notes.append(f"posterior skipped: only {n_ok} successful trials "
                      f"(at least {MIN_OK_TRIALS_FOR_POSTERIOR} needed)")
+    if cal.config.section("reference").get("file"):
+        from .reference import run_reference
+
+        with _stage_progress(cal, result).executor("reference", 1, executor,
+                                                   "the [reference] profile, once") as ex:
+            run_reference(cal, out, ex)
     if notes:
         _atomic_text(out / "notes.json", json.dumps(notes, indent=2))
     with _stage_progress(cal, result).timed("report", "drawing the figures, writing summary and report"):
@@ -178,7 +184,10 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
     posterior, bands, predictions = _load_optional(out)
     search_info = json.loads((out / SEARCH_FILE).read_text()) if (out / SEARCH_FILE).exists() else {}
     notes = json.loads((out / "notes.json").read_text()) if (out / "notes.json").exists() else []
-    figures = _figures(out, cal, trials, posterior, bands)
+    from .reference import load_reference_result
+
+    reference = load_reference_result(out)
+    figures = _figures(out, cal, trials, posterior, bands, reference)
     summary: dict[str, Any] = {
         "profshape_version": __version__,
         "title": _get(cal, "title"),
@@ -198,6 +207,7 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
         "figures": figures,
         "notes": notes,
         "report": REPORT_FILE,
+        "reference": _reference_summary(reference, trials, best_trial),
     }
     if posterior is not None:
         summary["posterior"] = {
@@ -215,6 +225,12 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
     _atomic_text(out / SUMMARY_FILE, json.dumps(_clean(summary), indent=2))
     _atomic_text(out / REPORT_FILE, _report_markdown(summary, posterior, bands, predictions, trials))
     return summary
+
+
+def _reference_summary(reference: Any, trials: pd.DataFrame, best_trial: Any) -> Any:
+    from .reference import reference_summary
+
+    return reference_summary(reference, trials, best_trial)
 
 
 def _get(cal: Any, key: str) -> Any:
@@ -264,7 +280,8 @@ def rebuild_report(out: str | Path) -> dict[str, Any]:
     return write_outputs(out)
 
 
-def _figures(out: Path, cal: Any, trials: pd.DataFrame, posterior: Any, bands: Any) -> list[str]:
+def _figures(out: Path, cal: Any, trials: pd.DataFrame, posterior: Any, bands: Any,
+             reference: Any = None) -> list[str]:
     """Draw the figures into ``out/figures``; returns their paths relative to ``out``.
 
     A figure that cannot be drawn is skipped with a note in the report (the
@@ -292,7 +309,8 @@ def _figures(out: Path, cal: Any, trials: pd.DataFrame, posterior: Any, bands: A
     units = list(problem.family.units) + ["log10(-)"] * (len(problem.names) - problem.family.n_coefficients)
     jobs = {
         "fit": lambda p: plots.plot_fit(problem.dataset, bands=bands,
-                                        best=plots.best_fit_from_trials(trials), paths=p),
+                                        best=plots.best_fit_from_trials(trials), paths=p,
+                                        reference=reference),
         "search_trace": lambda p: plots.plot_search_trace(trials, paths=p),
         "pairs": lambda p: plots.plot_pairs(trials, list(problem.names), posterior=posterior,
                                             paths=p, units=units),
@@ -300,7 +318,10 @@ def _figures(out: Path, cal: Any, trials: pd.DataFrame, posterior: Any, bands: A
     }
     if bands is not None:
         length = getattr(device, "channel_length_m", None)
-        jobs["profile_band"] = lambda p: plots.plot_profile_band(bands, paths=p, channel_length_m=length)
+        field = getattr(device, "magnetic_field", None)
+        jobs["profile_band"] = lambda p: plots.plot_profile_band(
+            bands, paths=p, channel_length_m=length, reference=reference,
+            magnetic_field_T=field, points={pt.label: pt for pt in problem.dataset.operating_points})
     written: list[str] = []
     for name, job in jobs.items():
         paths = [folder / f"{name}.{fmt}" for fmt in formats]
@@ -344,6 +365,10 @@ def _report_markdown(summary: dict[str, Any], posterior: Any, bands: Any,
         "|---|---|---|---|",
     ]
     post_rows = {r["name"]: r for r in (summary.get("posterior") or {}).get("summary", [])}
+    if summary.get("reference"):
+        from .reference import reference_markdown
+
+        lines[lines.index("## Best fit"):lines.index("## Best fit")] = reference_markdown(summary)
     for name, value in (summary.get("best_coefficients") or {}).items():
         r = post_rows.get(name, {})
         interval = (f"[{_fmt(r.get('lower_0.68'))}, {_fmt(r.get('upper_0.68'))}]"
