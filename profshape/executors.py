@@ -20,7 +20,7 @@ from typing import Any
 from .exceptions import InputDataError
 
 __all__ = ["SPAWN_GUARD_HINT", "InlineExecutor", "dask_executor", "local_executor",
-           "spawn_bootstrap_failure"]
+           "refuse_in_spawn_bootstrap", "spawn_bootstrap_failure"]
 
 #: What a trial's reason says when spawned workers re-ran an unguarded script.
 SPAWN_GUARD_HINT = (
@@ -37,8 +37,28 @@ def _marker(parent_pid: int) -> Path:
 
 def _in_spawn_bootstrap() -> bool:
     """True inside a spawned child that is still importing the parent's main module."""
-    return (multiprocessing.parent_process() is not None
-            and bool(getattr(multiprocessing.current_process(), "_inheriting", False)))
+    # the flag multiprocessing itself checks before refusing to start a process
+    # (multiprocessing.spawn._check_not_importing_main); set while the main module re-runs
+    return bool(getattr(multiprocessing.current_process(), "_inheriting", False))
+
+
+def refuse_in_spawn_bootstrap() -> None:
+    """Inside a spawned worker re-running an unguarded main script: leave a marker, raise.
+
+    Called where profshape would start processes (:func:`local_executor`,
+    :func:`profshape.search.run_search`); does nothing in a normal process.
+
+    Raises
+    ------
+    RuntimeError
+        Naming the missing ``if __name__ == "__main__":`` guard.
+    """
+    if not _in_spawn_bootstrap():
+        return
+    script = getattr(sys.modules.get("__mp_main__") or sys.modules.get("__main__"), "__file__", "")
+    with contextlib.suppress(OSError):
+        _marker(os.getppid()).write_text(str(script), encoding="utf-8")
+    raise RuntimeError(SPAWN_GUARD_HINT.format(script=script or "(unknown)") + ".")
 
 
 def spawn_bootstrap_failure(parent_pid: int | None = None) -> str | None:
@@ -75,13 +95,7 @@ def local_executor(max_workers: int | None = None) -> ProcessPoolExecutor:
     Each worker exits when the process that made the pool dies, even by
     SIGKILL (an idle pool worker otherwise waits for work forever).
     """
-    if _in_spawn_bootstrap():
-        # we are a spawned worker re-running an unguarded main script: tell the parent
-        script = getattr(sys.modules.get("__mp_main__") or sys.modules.get("__main__"),
-                         "__file__", "")
-        with contextlib.suppress(OSError):
-            _marker(os.getppid()).write_text(str(script), encoding="utf-8")
-        raise RuntimeError(SPAWN_GUARD_HINT.format(script=script or "(unknown)") + ".")
+    refuse_in_spawn_bootstrap()
     with contextlib.suppress(OSError):  # a stale marker of an earlier process with this pid
         _marker(os.getpid()).unlink()
     n = max_workers or os.cpu_count() or 1

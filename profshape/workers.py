@@ -130,7 +130,7 @@ def jobqueue_cluster(workers: Mapping[str, Any]) -> Any:
         "python": workers.get("python") or sys.executable,
         "job_extra_directives": list(workers.get("job_directives") or []),
         "worker_extra_args": extra_args,
-        "name": "profshape-worker",
+        "job_name": "profshape-worker",
     }
     if workers.get("queue"):
         kwargs["queue"] = str(workers["queue"])

@@ -63,15 +63,20 @@ def save(fig: Any, paths: str | Path | Iterable[str | Path] | None) -> None:
         return
     if isinstance(paths, str | Path):
         paths = [paths]
-    for p in paths:
-        path = Path(p)
+    paths = [Path(p) for p in paths]
+    for path in paths:
         if not path.suffix:
             raise InputDataError(
                 f"plot path {str(path)!r} has no suffix; end it in .png, .svg or .pdf."
             )
+    for k, path in enumerate(paths):
         path.parent.mkdir(parents=True, exist_ok=True)
         with style():
             fig.savefig(path)
+        if k == 0 and len(paths) > 1 and fig.get_layout_engine() is not None:
+            # the layout is solved; the other formats reuse it (constrained layout is the
+            # slowest part of drawing a many-panel figure)
+            fig.set_layout_engine("none")
 
 
 def band_levels(columns: Iterable[str]) -> list[float]:

@@ -72,7 +72,11 @@ def plot_pairs(
         return f"{names[k]}\n[{units[k]}]"
 
     with _style.style():
-        fig = _style.new_figure(2.0 * d + 1.2, 2.0 * d + 0.3)
+        # a fixed grid (margins in inches): constrained layout costs seconds on d x d panels
+        width, height = 2.0 * d + 1.6, 2.0 * d + 0.9
+        fig = _style.new_figure(width, height, layout=None)
+        fig.subplots_adjust(left=1.05 / width, right=1.0 - 1.1 / width, bottom=0.95 / height,
+                            top=1.0 - 0.15 / height, wspace=0.08, hspace=0.08)
         axes = np.atleast_2d(fig.subplots(d, d, squeeze=False))
         mappable = None
         for i in range(d):
@@ -124,9 +128,10 @@ def plot_pairs(
                         Line2D([], [], marker=".", ls="none", color=_style.POSTERIOR,
                                label="posterior sample")]
         if mappable is not None:
-            cbar = fig.colorbar(mappable, ax=axes.ravel().tolist(), shrink=0.5, anchor=(0.0, 0.0))
+            cax = fig.add_axes((1.0 - 0.95 / width, 0.95 / height, 0.18 / width, 0.45))
+            cbar = fig.colorbar(mappable, cax=cax)
             cbar.set_label("log10 reduced chi-square [-]")
         # the empty upper triangle holds the legend, clear of every panel
-        fig.legend(handles=handles, loc="upper right", bbox_to_anchor=(0.98, 0.98), fontsize=7.5)
+        fig.legend(handles=handles, loc="upper right", bbox_to_anchor=(0.99, 0.99), fontsize=7.5)
     _style.save(fig, paths)
     return fig

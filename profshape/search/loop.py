@@ -352,6 +352,9 @@ def run_search(
     ForwardModelError
         If the forward model cannot be sent to the executor.
     """
+    from ..executors import refuse_in_spawn_bootstrap
+
+    refuse_in_spawn_bootstrap()  # a spawned worker re-running an unguarded script: say so
     if not isinstance(settings, SearchSettings):
         raise ConfigError(f"settings must be a SearchSettings; got {type(settings).__name__}.")
     log_path = Path(log_path)

@@ -1,0 +1,68 @@
+"""Time `profshape report` (figures, summary, report; no forward run) on a calibration folder.
+
+Usage::
+
+    python benchmarks/report_redraw.py RUN_FOLDER [--repeats 3]
+
+Copies the folder (the report rewrites figures), rebuilds the report ``--repeats``
+times in this process and prints the median wall time, the time per figure and the
+peak resident memory. To compare two versions side by side on the same folder, run it
+once with each on the PYTHONPATH, e.g.::
+
+    PYTHONPATH=/path/to/old python benchmarks/report_redraw.py RUN
+    PYTHONPATH=$PWD python benchmarks/report_redraw.py RUN
+"""
+
+from __future__ import annotations
+
+import argparse
+import resource
+import shutil
+import statistics
+import tempfile
+import time
+from pathlib import Path
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("folder", help="a finished calibration folder")
+    parser.add_argument("--repeats", type=int, default=3)
+    args = parser.parse_args()
+    t0 = time.perf_counter()
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.figure
+
+    import profshape
+    from profshape.report import rebuild_report
+
+    print(f"profshape from {Path(profshape.__file__).parent}; import {time.perf_counter() - t0:.2f} s")
+    per_figure: dict[str, list[float]] = {}
+    original = matplotlib.figure.Figure.savefig
+
+    def timed_savefig(self, fname, *a, **k):  # time spent saving, per figure file
+        s = time.perf_counter()
+        out = original(self, fname, *a, **k)
+        per_figure.setdefault(Path(str(fname)).name, []).append(time.perf_counter() - s)
+        return out
+
+    matplotlib.figure.Figure.savefig = timed_savefig
+    walls = []
+    with tempfile.TemporaryDirectory() as tmp:
+        work = Path(tmp) / "run"
+        shutil.copytree(args.folder, work)
+        for _ in range(args.repeats):
+            s = time.perf_counter()
+            rebuild_report(work)
+            walls.append(time.perf_counter() - s)
+    peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    print(f"report rebuild: median {statistics.median(walls):.2f} s over {len(walls)} "
+          f"(all: {', '.join(f'{w:.2f}' for w in walls)}); peak RSS {peak_mb:.0f} MB")
+    for name, ts in sorted(per_figure.items()):
+        print(f"  save {name:<22} median {statistics.median(ts):.2f} s")
+
+
+if __name__ == "__main__":
+    main()
