@@ -253,6 +253,8 @@ def closure_dataset(frame: pd.DataFrame, attributes: dict[str, Any]) -> Any:
 
 def read_closure_csv(path: str | Path) -> pd.DataFrame:
     """Read ``closure.csv`` back exactly (round-trip float parsing)."""
+    if int(pd.__version__.split(".")[0]) >= 3:  # round-trip exact by default
+        return pd.read_csv(path)
     return pd.read_csv(path, float_precision="round_trip")
 
 

@@ -72,7 +72,7 @@ def read_reference_table(path: str | Path) -> tuple[np.ndarray, np.ndarray]:
     """
     path = Path(path)
     try:
-        table = pd.read_csv(path, float_precision="round_trip")
+        table = pd.read_csv(path)
     except (OSError, ValueError, pd.errors.ParserError) as exc:
         raise InputDataError(f"{path}: cannot be read as CSV: {exc}") from None
     missing = [c for c in ("z_m", "value") if c not in table.columns]

@@ -87,6 +87,13 @@ cache = true                      # result cache keyed by coefficients, point an
 
 [forward_model.solver]            # any field of profshape.solver.SolverSettings
 n_cells = 160
+# for your own program instead (see `profshape init --external`):
+# kind = "external"
+# command = ["./my_code", "--input", "{input}"]
+# timeout_s = 600.0
+# retries = 0
+# grid_points = 251
+# version = "0"
 '''
 
 _FORWARD_EXTERNAL = '''
