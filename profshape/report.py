@@ -89,7 +89,8 @@ def finish(cal: Any, result: Any, out: Path, executor: Any = None) -> dict[str, 
     if cal.config.section("reference").get("file"):
         from .reference import run_reference
 
-        with _stage_progress(cal, result).executor("reference", 1, executor,
+        with _stage_progress(cal, result).executor("reference", len(cal.problem.dataset.labels),
+                                                   executor,
                                                    "the [reference] profile, once") as ex:
             run_reference(cal, out, ex)
     if notes:

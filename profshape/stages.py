@@ -131,12 +131,14 @@ class StageProgress:
         t0 = time.perf_counter()
         bar = tqdm(total=max(n_runs, 1), desc=name, unit="run", file=self.stream,
                    dynamic_ncols=True, leave=False)
+        state = "stopped after"
         try:
             yield CountingExecutor(executor, lambda: bar.update(1))
+            state = "done in"
         finally:
             n_done = bar.n
             bar.close()
-            self.line(f"{name}: done in {format_duration(time.perf_counter() - t0)} "
+            self.line(f"{name}: {state} {format_duration(time.perf_counter() - t0)} "
                       f"({n_done} forward runs)")
 
     @contextmanager
@@ -144,5 +146,9 @@ class StageProgress:
         """A stage without forward runs: one line before, one with its time after."""
         t0 = time.perf_counter()
         self.line(f"{name}: {what}")
-        yield
-        self.line(f"{name}: done in {format_duration(time.perf_counter() - t0)}")
+        state = "stopped after"
+        try:
+            yield
+            state = "done in"
+        finally:
+            self.line(f"{name}: {state} {format_duration(time.perf_counter() - t0)}")

@@ -171,3 +171,27 @@ def test_trial_log_is_group_readable(tmp_path):
         assert mode == 0o640, (name, oct(mode))  # 0666 less the umask 027: group may read
     json.loads((tmp_path / "trials.parquet.json").read_text())
     assert np.isfinite(pd.read_parquet(tmp_path / "trials.parquet")["reduced_chi2"]).all()
+
+
+# ------------------------------------------ issue 15 item 4: stage lines and bars after the search
+def test_stage_lines_count_runs_and_give_an_eta():
+    import io
+
+    from profshape.executors import InlineExecutor
+    from profshape.stages import StageProgress
+
+    trials = pd.DataFrame({"status": ["ok", "ok", "ok", "failed"],
+                           "wall_time_s": [1.0, 2.0, 3.0, 50.0]})
+    stream = io.StringIO()
+    stages = StageProgress(trials, n_workers=2, enabled=True, stream=stream)
+    assert stages.eta_s(5) == 6.0  # ceil(5 / 2) rounds x the median ok trial (2 s)
+    with stages.executor("bands", 5, InlineExecutor(), "posterior draws") as ex:
+        results = [ex.submit(pow, k, 2).result() for k in range(4)]
+    assert results == [0, 1, 4, 9]
+    text = stream.getvalue()
+    assert "profshape: bands: posterior draws, up to 5 forward runs; about 6 s of forward runs" in text
+    assert "profshape: bands: done in" in text and "(4 forward runs)" in text
+    quiet = io.StringIO()
+    with StageProgress(trials, 2, enabled=False, stream=quiet).executor("x", 3, None) as ex:
+        assert ex is None
+    assert quiet.getvalue() == ""
