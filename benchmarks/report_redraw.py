@@ -3,6 +3,7 @@
 Usage::
 
     python benchmarks/report_redraw.py RUN_FOLDER [--repeats 3]
+    python benchmarks/report_redraw.py --pairs-dim 8      # the pairs plot alone, synthetic
 
 Copies the folder (the report rewrites figures), rebuilds the report ``--repeats``
 times in this process and prints the median wall time, the time per figure and the
@@ -26,9 +27,16 @@ from pathlib import Path
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("folder", help="a finished calibration folder")
+    parser.add_argument("folder", nargs="?", help="a finished calibration folder")
     parser.add_argument("--repeats", type=int, default=3)
+    parser.add_argument("--pairs-dim", type=int, help="time only the pairs plot of this many "
+                        "coefficients (200 synthetic trials, 3000 posterior points, PNG + SVG)")
     args = parser.parse_args()
+    if args.pairs_dim:
+        _pairs_only(args.pairs_dim)
+        return
+    if not args.folder:
+        parser.error("give a calibration folder or --pairs-dim")
     t0 = time.perf_counter()
     import matplotlib
 
@@ -62,6 +70,28 @@ def main() -> None:
           f"(all: {', '.join(f'{w:.2f}' for w in walls)}); peak RSS {peak_mb:.0f} MB")
     for name, ts in sorted(per_figure.items()):
         print(f"  save {name:<22} median {statistics.median(ts):.2f} s")
+
+
+def _pairs_only(d: int) -> None:
+    import numpy as np
+    import pandas as pd
+
+    import profshape
+    from profshape.plots import plot_pairs
+
+    rng = np.random.default_rng(0)
+    names = [f"log10_level_{k}" for k in range(d)]
+    trials = pd.DataFrame({n: rng.uniform(0, 1, 200) for n in names})
+    trials["status"] = "ok"
+    trials["reduced_chi2"] = rng.uniform(1, 50, 200)
+    post = pd.DataFrame({n: rng.normal(0.5, 0.1, 3000) for n in names})
+    with tempfile.TemporaryDirectory() as tmp:
+        t = time.perf_counter()
+        plot_pairs(trials, names, post, paths=[Path(tmp) / "p.png", Path(tmp) / "p.svg"],
+                   units=["log10(-)"] * d)
+        wall = time.perf_counter() - t
+    print(f"profshape from {Path(profshape.__file__).parent}: pairs plot d={d}, 200 trials, "
+          f"3000 posterior points, PNG + SVG: {wall:.1f} s")
 
 
 if __name__ == "__main__":
