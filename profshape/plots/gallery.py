@@ -126,6 +126,7 @@ def plot_shape_gallery(
     ok = (df["status"] == "ok").to_numpy() & np.isfinite(r) & (r > 0)
     best_k = int(np.nanargmin(np.where(ok, r, np.nan))) if ok.any() else None
     keep = gallery_selection(len(df), n, best_k)
+    n_total = len(df)
     df, profiles, r, ok = df.iloc[keep].reset_index(drop=True), profiles[keep], r[keep], ok[keep]
     best_k = keep.index(best_k) if best_k is not None else None
     logr = np.log10(np.where(ok, r, np.nan))
@@ -170,6 +171,9 @@ def plot_shape_gallery(
             ax.grid(False)
         for ax in axes[n:]:
             ax.set_visible(False)
+        if n_total > n:
+            fig.suptitle(f"{n} of {n_total} trials: the earliest, the best (framed) and the latest",
+                         fontsize=8.5, y=0.995)
         fig.supxlabel("axial position z [mm]", fontsize=8.5)
         fig.supylabel(quantity, fontsize=8.5)
         from matplotlib.cm import ScalarMappable
