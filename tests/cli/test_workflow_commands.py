@@ -272,3 +272,19 @@ def test_compare_two_families(case):
         assert "[" in r["intervals_68"]
     assert table["delta_bic"].min() == 0.0
     assert (folder / "cmp" / "comparison.png").stat().st_size > 5000
+
+
+def test_export_without_posterior_gives_the_best_profile(case, tmp_path):
+    import shutil
+
+    from profshape.export import export_closure, read_closure_csv
+
+    run = tmp_path / "run"
+    shutil.copytree(case["run"], run)
+    shutil.rmtree(run / "bands")
+    files = export_closure(run, formats=["csv"])
+    frame = read_closure_csv(files["csv"])
+    value_cols = [c for c in frame.columns if "__" in c]
+    assert value_cols == ["bohm_coefficient__best", "collision_frequency_hz__best"]
+    with pytest.raises(Exception, match="formats must be among"):
+        export_closure(run, formats=["xlsx"])
