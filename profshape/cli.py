@@ -106,7 +106,7 @@ def _cmd_calibrate(args: argparse.Namespace) -> int:
 def _cmd_resume(args: argparse.Namespace) -> int:
     from .pipeline import resume
 
-    summary = resume(args.folder, progress=not args.quiet)
+    summary = resume(args.folder, progress=not args.quiet, budget=args.budget)
     _print_summary(summary, Path(args.folder))
     return EXIT_OK
 
@@ -116,6 +116,33 @@ def _cmd_report(args: argparse.Namespace) -> int:
 
     summary = rebuild_report(args.folder)
     _print_summary(summary, Path(args.folder))
+    return EXIT_OK
+
+
+def _cmd_init(args: argparse.Namespace) -> int:
+    from .template import write_template
+
+    path = write_template(args.file, "external" if args.external else "builtin", force=args.force)
+    print(f"wrote {path}: fill in the data files and the {'command' if args.external else 'device'}, "
+          f"then run `profshape calibrate {path}`")
+    return EXIT_OK
+
+
+def _cmd_export(args: argparse.Namespace) -> int:
+    from .export import export_closure
+
+    formats = args.formats.split(",") if args.formats else ("csv", "json", "nc")
+    for fmt, path in export_closure(args.folder, args.out, formats).items():
+        print(f"{fmt}: {path}")
+    return EXIT_OK
+
+
+def _cmd_compare(args: argparse.Namespace) -> int:
+    from .compare_runs import compare_runs
+
+    result = compare_runs(args.folders, args.out, criterion=args.criterion)
+    print(result["text"], end="")
+    print(f"written: {', '.join(str(p) for p in result['files'])}")
     return EXIT_OK
 
 
@@ -165,6 +192,8 @@ def _parser() -> argparse.ArgumentParser:
                          description="Continue the calibration in FOLDER: completed trials are "
                                      "kept, those in flight are re-run.")
     res.add_argument("folder", help="output folder of the calibration")
+    res.add_argument("--budget", type=int, help="extend the run to this many trials in all "
+                     "(also a finished run; the posterior and report are redone)")
     res.add_argument("--quiet", action="store_true", help="no progress bar")
     res.set_defaults(func=_cmd_resume)
 
@@ -173,6 +202,33 @@ def _parser() -> argparse.ArgumentParser:
                                      "files, without running any forward model.")
     rep.add_argument("folder", help="output folder of the calibration")
     rep.set_defaults(func=_cmd_report)
+
+    ini = sub.add_parser("init", help="write a commented calibration-file template",
+                         description="Write a calibration file with every key, commented, to fill "
+                                     "in (for the built-in solver, or --external for your program).")
+    ini.add_argument("file", help="file to write, e.g. my_thruster.toml")
+    ini.add_argument("--external", action="store_true", help="for an external program")
+    ini.add_argument("--force", action="store_true", help="overwrite an existing file")
+    ini.set_defaults(func=_cmd_init)
+
+    exp = sub.add_parser("export", help="export the calibrated profile for other codes",
+                         description="Write z, the Bohm-like coefficient and the collision frequency "
+                                     "[1/s] (best, median, bands), the magnetic field and the "
+                                     "operating points of FOLDER as CSV, JSON and netCDF.")
+    exp.add_argument("folder", help="output folder of the calibration")
+    exp.add_argument("--out", help="folder to write into (default FOLDER/export)")
+    exp.add_argument("--formats", help="comma-separated subset of csv,json,nc (default all)")
+    exp.set_defaults(func=_cmd_export)
+
+    cmp_ = sub.add_parser("compare", help="rank the shape families of finished runs",
+                          description="Table (BIC, Laplace evidence, best reduced chi-square, "
+                                      "intervals) and figure of runs fitted to the same data.")
+    cmp_.add_argument("folders", nargs="+", help="output folders of the calibrations")
+    cmp_.add_argument("--out", help="folder for the table and figure (default a new "
+                      "profshape-compare-* folder here)")
+    cmp_.add_argument("--criterion", default="bic", choices=("bic", "aic", "laplace"),
+                      help="what the ranking sorts on (default bic)")
+    cmp_.set_defaults(func=_cmd_compare)
 
     try:
         from .solver.command import add_parser as add_solve_parser

@@ -104,6 +104,21 @@ _SCHEMA: dict[str, Any] = {
     "workers": {
         "n_workers": ((int,), False, 1),
         "scheduler_address": ((str,), False, None),
+        # batch-scheduled clusters through dask-jobqueue (profshape.workers)
+        "kind": ((str,), False, "local"),
+        "jobs": ((int,), False, 1),
+        "cores": ((int,), False, 1),
+        "memory": ((str,), False, "4GB"),
+        "walltime": ((str,), False, "01:00:00"),
+        "queue": ((str,), False, None),
+        "account": ((str,), False, None),
+        "job_directives": ((list,), False, []),
+        "python": ((str,), False, None),
+    },
+    "reference": {  # a hand-tuned profile to compare with (profshape.reference)
+        "file": ((str,), False, None),
+        "quantity": ((str,), False, None),
+        "label": ((str,), False, "reference"),
     },
     "posterior": {
         "enabled": ((bool,), False, True),
@@ -354,6 +369,11 @@ def parse_config(text: str, path: str | Path = "<string>", base_dir: str | Path 
     if cfg.data["workers"]["n_workers"] < 1:
         raise cfg.error("workers.n_workers", "must be >= 1.")
     _check_values(cfg)
+    from .reference import check_reference_table
+    from .workers import check_workers_table
+
+    check_workers_table(cfg)
+    check_reference_table(cfg)
     return cfg
 
 

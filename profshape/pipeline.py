@@ -348,8 +348,10 @@ def _search_settings(cfg: CalibrationConfig, problem: CalibrationProblem, progre
             raise cfg.error(f"shape.start[{i}]", str(exc)) from None
     kwargs = {k: v for k, v in s.items() if v is not None}
     try:
+        from .workers import slots_in_flight
+
         return SearchSettings(initial_points=starts or None, progress=progress,
-                              n_workers=cfg.section("workers")["n_workers"], **kwargs)
+                              n_workers=slots_in_flight(cfg.section("workers")), **kwargs)
     except InputDataError as exc:
         raise ConfigError(f"{cfg.path}: [search]: {exc}") from None
 
@@ -483,6 +485,10 @@ def config_from_folder(out_dir: str | Path) -> CalibrationConfig:
 # --------------------------------------------------------------- executors
 def _executor(cfg: CalibrationConfig, stack: ExitStack) -> Executor | None:
     workers = cfg.section("workers")
+    if workers.get("kind", "local") != "local":  # SLURM / PBS through dask-jobqueue
+        from .workers import executor_for_config
+
+        return executor_for_config(cfg, stack)
     if workers["scheduler_address"]:
         from distributed import Client
 
@@ -572,6 +578,7 @@ def run_calibration(cfg: CalibrationConfig, out_dir: str | Path, *, resume: bool
 
             executor = stack.enter_context(local_executor(cfg.section("workers")["n_workers"]))
         summary = finish(cal, result, out, executor=executor, skip_posterior=flat)
+    summary["output_folder"] = str(out)  # where it all went (the command line prints it)
     if result.best_trial is None or not math.isfinite(result.best_reduced_chi2):
         why = _failure_summary(result.trials)
         raise CampaignFailedError(
@@ -597,9 +604,19 @@ def calibrate(path: str | Path, out_dir: str | Path | None = None, *, progress: 
     return run_calibration(cfg, out, progress=progress)
 
 
-def resume(out_dir: str | Path, *, progress: bool = True) -> dict[str, Any]:
-    """Continue an interrupted calibration from its trial log."""
-    return run_calibration(config_from_folder(out_dir), out_dir, resume=True, progress=progress)
+def resume(out_dir: str | Path, *, progress: bool = True, budget: int | None = None
+           ) -> dict[str, Any]:
+    """Continue an interrupted calibration from its trial log.
+
+    With ``budget``, extend the run to that many trials in all (also a finished
+    one; see :mod:`profshape.extend`); the posterior and outputs are redone.
+    """
+    cfg = config_from_folder(out_dir)
+    if budget is not None:
+        from .extend import extend_budget
+
+        extend_budget(cfg, out_dir, budget)
+    return run_calibration(cfg, out_dir, resume=True, progress=progress)
 
 
 def new_folder_name(prefix: str = "profshape-run") -> Path:

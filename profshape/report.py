@@ -102,9 +102,17 @@ def finish(cal: Any, result: Any, out: Path, executor: Any = None,
         error = (f"only {n_ok} successful trials, at least d + 2 = {need} needed; "
                  "raise the search budget and resume")
         notes.append(f"posterior skipped: {error}")
+    if cal.config.section("reference").get("file"):
+        from .reference import run_reference
+
+        with _stage_progress(cal, result).executor("reference", len(cal.problem.dataset.labels),
+                                                   executor,
+                                                   "the [reference] profile, once") as ex:
+            run_reference(cal, out, ex)
     if notes:
         _atomic_text(out / "notes.json", json.dumps(notes, indent=2))
-    summary = write_outputs(out, cal=cal)
+    with _stage_progress(cal, result).timed("report", "drawing the figures, writing summary and report"):
+        summary = write_outputs(out, cal=cal)
     if error is not None and n_ok:
         summary["posterior_error"] = error
     return summary
@@ -120,23 +128,39 @@ def _posterior_products(cal: Any, result: Any, out: Path, executor: Any, notes: 
     kwargs = {k: post_cfg[k] for k in keys if post_cfg[k] is not None}
     levels = tuple(float(v) for v in post_cfg["band_levels"])
     settings = PosteriorSettings(seed=seed, band_levels=levels, **kwargs)
+    stages = _stage_progress(cal, result)
+    n_draws = int(post_cfg["n_band_draws"])
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", ProfshapeWarning)
-        posterior = sample_posterior(cal.problem, result.trials, settings, executor=executor)
+        n_post = settings.n_refine_rounds * settings.n_refine_draws + 1 + settings.n_check_draws
+        with stages.executor("posterior", n_post, executor,
+                             "sampling on the surrogate, refinement and check runs") as ex:
+            posterior = sample_posterior(cal.problem, result.trials, settings, executor=ex)
         posterior.save(out / POSTERIOR_DIR)
-        n_draws = int(post_cfg["n_band_draws"])
-        bands = posterior_bands(cal.problem, posterior, levels=levels, n_draws=n_draws,
-                                executor=executor, seed=seed)
+        with stages.executor("bands", n_draws + 1, executor, "posterior draws") as ex:
+            bands = posterior_bands(cal.problem, posterior, levels=levels, n_draws=n_draws,
+                                    executor=ex, seed=seed)
         bands.save(out / BANDS_DIR)
         tables = [bands.scalars.assign(in_data=True, extrapolation=False, extrapolation_reason="")]
         if cal.prediction_points:
-            tables.append(predict_scalars(cal.problem, posterior, cal.prediction_points,
-                                          n_draws=max(n_draws, 1), levels=levels,
-                                          executor=executor, seed=seed))
+            with stages.executor("predictions",
+                                 (max(n_draws, 1) + 1) * len(cal.prediction_points),
+                                 executor, "posterior draws at the prediction points") as ex:
+                tables.append(predict_scalars(cal.problem, posterior, cal.prediction_points,
+                                              n_draws=max(n_draws, 1), levels=levels,
+                                              executor=ex, seed=seed))
         predictions = pd.concat(tables, ignore_index=True)
         predictions.to_csv(out / PREDICTIONS_FILE, index=False)
     notes.extend(f"{type(w.message).__name__}: {w.message}" for w in caught
                  if issubclass(w.category, ProfshapeWarning))
+
+
+def _stage_progress(cal: Any, result: Any) -> Any:
+    from .stages import StageProgress
+
+    settings = getattr(cal, "search_settings", None)
+    return StageProgress(result.trials, getattr(settings, "workers", 1),
+                         bool(getattr(settings, "progress", False)))
 
 
 # ------------------------------------------------------------------ outputs
@@ -180,7 +204,10 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
     posterior, bands, predictions = _load_optional(out)
     search_info = json.loads((out / SEARCH_FILE).read_text()) if (out / SEARCH_FILE).exists() else {}
     notes = json.loads((out / "notes.json").read_text()) if (out / "notes.json").exists() else []
-    figures = _figures(out, cal, trials, posterior, bands)
+    from .reference import load_reference_result
+
+    reference = load_reference_result(out)
+    figures = _figures(out, cal, trials, posterior, bands, reference)
     summary: dict[str, Any] = {
         "profshape_version": __version__,
         "title": _get(cal, "title"),
@@ -201,6 +228,7 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
         "figures": figures,
         "notes": notes,
         "report": REPORT_FILE,
+        "reference": _reference_summary(reference, trials, best_trial),
     }
     if posterior is not None:
         summary["posterior"] = {
@@ -218,6 +246,12 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
     _atomic_text(out / SUMMARY_FILE, json.dumps(_clean(summary), indent=2))
     _atomic_text(out / REPORT_FILE, _report_markdown(summary, posterior, bands, predictions, trials))
     return summary
+
+
+def _reference_summary(reference: Any, trials: pd.DataFrame, best_trial: Any) -> Any:
+    from .reference import reference_summary
+
+    return reference_summary(reference, trials, best_trial)
 
 
 def _get(cal: Any, key: str) -> Any:
@@ -267,7 +301,8 @@ def rebuild_report(out: str | Path) -> dict[str, Any]:
     return write_outputs(out)
 
 
-def _figures(out: Path, cal: Any, trials: pd.DataFrame, posterior: Any, bands: Any) -> list[str]:
+def _figures(out: Path, cal: Any, trials: pd.DataFrame, posterior: Any, bands: Any,
+             reference: Any = None) -> list[str]:
     """Draw the figures into ``out/figures``; returns their paths relative to ``out``.
 
     A figure that cannot be drawn is skipped with a note in the report (the
@@ -295,7 +330,8 @@ def _figures(out: Path, cal: Any, trials: pd.DataFrame, posterior: Any, bands: A
     units = list(problem.family.units) + ["log10(-)"] * (len(problem.names) - problem.family.n_coefficients)
     jobs = {
         "fit": lambda p: plots.plot_fit(problem.dataset, bands=bands,
-                                        best=plots.best_fit_from_trials(trials), paths=p),
+                                        best=plots.best_fit_from_trials(trials), paths=p,
+                                        reference=reference),
         "search_trace": lambda p: plots.plot_search_trace(trials, paths=p),
         "pairs": lambda p: plots.plot_pairs(trials, list(problem.names), posterior=posterior,
                                             paths=p, units=units),
@@ -303,7 +339,10 @@ def _figures(out: Path, cal: Any, trials: pd.DataFrame, posterior: Any, bands: A
     }
     if bands is not None:
         length = getattr(device, "channel_length_m", None)
-        jobs["profile_band"] = lambda p: plots.plot_profile_band(bands, paths=p, channel_length_m=length)
+        field = getattr(device, "magnetic_field", None)
+        jobs["profile_band"] = lambda p: plots.plot_profile_band(
+            bands, paths=p, channel_length_m=length, reference=reference,
+            magnetic_field_T=field, points={pt.label: pt for pt in problem.dataset.operating_points})
     written: list[str] = []
     for name, job in jobs.items():
         paths = [folder / f"{name}.{fmt}" for fmt in formats]
@@ -348,6 +387,10 @@ def _report_markdown(summary: dict[str, Any], posterior: Any, bands: Any,
         "|---|---|---|---|",
     ]
     post_rows = {r["name"]: r for r in (summary.get("posterior") or {}).get("summary", [])}
+    if summary.get("reference"):
+        from .reference import reference_markdown
+
+        lines[lines.index("## Best fit"):lines.index("## Best fit")] = reference_markdown(summary)
     for name, value in (summary.get("best_coefficients") or {}).items():
         r = post_rows.get(name, {})
         interval = (f"[{_fmt(r.get('lower_0.68'))}, {_fmt(r.get('upper_0.68'))}]"

@@ -143,6 +143,17 @@ def _fsync_dir(folder: Path) -> None:
             os.close(fd)
 
 
+def _current_umask() -> int:
+    """The process umask, read without changing it where Linux allows (thread-safe)."""
+    with contextlib.suppress(OSError, ValueError):
+        for line in Path("/proc/self/status").read_text().splitlines():
+            if line.startswith("Umask:"):
+                return int(line.split()[1], 8)
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
 def atomic_write_bytes(path: str | os.PathLike[str], writer: Any) -> None:
     """Write a file atomically: temp file in the same folder, fsync, os.replace.
 
@@ -158,6 +169,9 @@ def atomic_write_bytes(path: str | os.PathLike[str], writer: Any) -> None:
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     os.close(fd)
     try:
+        # mkstemp makes the file 0600; give it the usual mode (0666 less the umask), so
+        # logs on a shared cluster are readable by the group as other outputs are
+        os.chmod(tmp, 0o666 & ~_current_umask())
         writer(tmp)
         with open(tmp, "rb+") as fh:
             os.fsync(fh.fileno())

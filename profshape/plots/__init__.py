@@ -15,18 +15,22 @@ matplotlib is imported on first use.
 
 from __future__ import annotations
 
-from .fit import best_fit_from_trials, plot_fit
-from .gallery import plot_shape_gallery, shapes_from_trials
+from .compare import plot_comparison
+from .fit import best_fit_from_trials, plot_fit, point_title
+from .gallery import gallery_selection, plot_shape_gallery, shapes_from_trials
 from .pairs import plot_pairs
 from .profile import plot_profile_band
 from .trace import plot_search_trace
 
 __all__ = [
     "best_fit_from_trials",
+    "gallery_selection",
+    "plot_comparison",
     "plot_fit",
     "plot_pairs",
     "plot_profile_band",
     "plot_search_trace",
     "plot_shape_gallery",
+    "point_title",
     "shapes_from_trials",
 ]

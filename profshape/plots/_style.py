@@ -21,9 +21,11 @@ BEST = "#0f4c5c"
 MEDIAN = "#5b6770"
 BAND_FILLS = ("#c9c6a6", "#e9e6cf")  # inner (narrow level), outer (wide level)
 FAIL = "#a23b2a"
+REFERENCE = "#8a4f7d"  # a muted plum, apart from the best fit and the failures
 POSTERIOR = "#2b2d42"
 CMAP = "cividis"
 CMAP_REVERSED = "cividis_r"  # low misfit bright, high misfit dark
+PALETTE = ("#0f4c5c", "#b5651d", "#5b8e3e", "#8a4f7d", "#3a5f8f", "#7a6a3a")  # runs compared
 MARKERS = ("o", "s", "^", "D", "v", "P", "X", "*")
 DASHES = ("-", "--", "-.", ":")
 RC = {
@@ -61,15 +63,20 @@ def save(fig: Any, paths: str | Path | Iterable[str | Path] | None) -> None:
         return
     if isinstance(paths, str | Path):
         paths = [paths]
-    for p in paths:
-        path = Path(p)
+    paths = [Path(p) for p in paths]
+    for path in paths:
         if not path.suffix:
             raise InputDataError(
                 f"plot path {str(path)!r} has no suffix; end it in .png, .svg or .pdf."
             )
+    for k, path in enumerate(paths):
         path.parent.mkdir(parents=True, exist_ok=True)
         with style():
             fig.savefig(path)
+        if k == 0 and len(paths) > 1 and fig.get_layout_engine() is not None:
+            # the layout is solved; the other formats reuse it (constrained layout is the
+            # slowest part of drawing a many-panel figure)
+            fig.set_layout_engine("none")
 
 
 def band_levels(columns: Iterable[str]) -> list[float]:

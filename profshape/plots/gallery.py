@@ -13,7 +13,7 @@ import pandas as pd
 from ..exceptions import InputDataError
 from . import _style
 
-__all__ = ["plot_shape_gallery", "shapes_from_trials"]
+__all__ = ["gallery_selection", "plot_shape_gallery", "shapes_from_trials"]
 
 
 def shapes_from_trials(
@@ -26,6 +26,38 @@ def shapes_from_trials(
         raise InputDataError(f"shapes_from_trials: the trial log lacks columns {missing}.")
     coeffs = trials[names].to_numpy(dtype=float)
     return np.asarray(family.evaluate(coeffs, np.asarray(z_m, dtype=float)), dtype=float)
+
+
+def gallery_selection(n_trials: int, max_shapes: int, best: int | None) -> list[int]:
+    """Row positions shown: the latest quarter, the best, then the earliest, in order.
+
+    Parameters
+    ----------
+    n_trials : int
+        Rows of the (trial-sorted) log.
+    max_shapes : int
+        Panels available.
+    best : int or None
+        Row of the best trial.
+    """
+    n = min(int(max_shapes), int(n_trials))
+    if n_trials <= n:
+        return list(range(n_trials))
+    chosen: list[int] = []
+    if best is not None:
+        chosen.append(int(best))
+    n_latest = max(1, n // 4)
+    for k in range(n_trials - 1, -1, -1):
+        if len(chosen) >= 1 + n_latest or len(chosen) >= n:
+            break
+        if k not in chosen:
+            chosen.append(k)
+    for k in range(n_trials):
+        if len(chosen) >= n:
+            break
+        if k not in chosen:
+            chosen.append(k)
+    return sorted(chosen)
 
 
 def plot_shape_gallery(
@@ -55,7 +87,9 @@ def plot_shape_gallery(
     quantity : str
         Y-axis label with unit, e.g. ``"Bohm-like coefficient [-]"``.
     max_shapes : int, default=24
-        Show the first ``max_shapes`` trials.
+        Panels at most. With more trials, the gallery shows the earliest ones,
+        the latest quarter and always the best trial (framed), in trial order
+        (see :func:`gallery_selection`).
     n_columns : int, default=6
     paths : path or paths, optional
 
@@ -90,6 +124,11 @@ def plot_shape_gallery(
         raise InputDataError("plot_shape_gallery: the trial log is empty.")
     r = pd.to_numeric(df["reduced_chi2"], errors="coerce").to_numpy(dtype=float)
     ok = (df["status"] == "ok").to_numpy() & np.isfinite(r) & (r > 0)
+    best_k = int(np.nanargmin(np.where(ok, r, np.nan))) if ok.any() else None
+    keep = gallery_selection(len(df), n, best_k)
+    n_total = len(df)
+    df, profiles, r, ok = df.iloc[keep].reset_index(drop=True), profiles[keep], r[keep], ok[keep]
+    best_k = keep.index(best_k) if best_k is not None else None
     logr = np.log10(np.where(ok, r, np.nan))
     norm = Normalize(np.nanmin(logr[:n]) if ok[:n].any() else 0.0,
                      np.nanmax(logr[:n]) if ok[:n].any() else 1.0)
@@ -110,8 +149,15 @@ def plot_shape_gallery(
             trial_no = int(df["trial"].iloc[k]) if "trial" in df else k
             if ok[k]:
                 ax.plot(1e3 * z, profiles[k], color=cmap(norm(logr[k])), lw=1.6)
-                ax.set_title(f"#{trial_no}  χ²ᵣ={r[k]:.3g}", fontsize=7.5)
+                is_best = k == best_k
+                ax.set_title(f"#{trial_no}  χ²ᵣ={r[k]:.3g}" + ("  best" if is_best else ""),
+                             fontsize=7.5, fontweight="bold" if is_best else "normal")
                 ax.set_facecolor("#f4f4f0")
+                if is_best:
+                    for side in ax.spines.values():
+                        side.set_visible(True)
+                        side.set_color(_style.BEST)
+                        side.set_linewidth(1.6)
             else:
                 ax.plot(1e3 * z, profiles[k], color=_style.FAIL, lw=1.0, ls="--")
                 ax.set_title(f"#{trial_no}  {df['status'].iloc[k]}", fontsize=7.5,
@@ -125,6 +171,9 @@ def plot_shape_gallery(
             ax.grid(False)
         for ax in axes[n:]:
             ax.set_visible(False)
+        if n_total > n:
+            fig.suptitle(f"{n} of {n_total} trials: the earliest, the best (framed) and the latest",
+                         fontsize=8.5, y=0.995)
         fig.supxlabel("axial position z [mm]", fontsize=8.5)
         fig.supylabel(quantity, fontsize=8.5)
         from matplotlib.cm import ScalarMappable

@@ -64,8 +64,19 @@ def plot_pairs(
     ok = (trials["status"] == "ok").to_numpy() & np.isfinite(r) & (r > 0)
     shade = np.log10(r[ok])
     d = len(names)
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+    from matplotlib.ticker import MaxNLocator
+
+    def label(k: int) -> str:  # name and unit on two lines: long names do not run into each other
+        return f"{names[k]}\n[{units[k]}]"
+
     with _style.style():
-        fig = _style.new_figure(1.9 * d + 1.0, 1.9 * d)
+        # a fixed grid (margins in inches): constrained layout costs seconds on d x d panels
+        width, height = 2.0 * d + 1.6, 2.0 * d + 0.9
+        fig = _style.new_figure(width, height, layout=None)
+        fig.subplots_adjust(left=1.05 / width, right=1.0 - 1.1 / width, bottom=0.95 / height,
+                            top=1.0 - 0.15 / height, wspace=0.08, hspace=0.08)
         axes = np.atleast_2d(fig.subplots(d, d, squeeze=False))
         mappable = None
         for i in range(d):
@@ -74,38 +85,53 @@ def plot_pairs(
                 if j > i:
                     ax.set_visible(False)
                     continue
+                ax.xaxis.set_major_locator(MaxNLocator(4))
                 if i == j:
                     x = trials.loc[ok, names[i]].to_numpy(dtype=float)
                     ax.hist(x, bins=20, color=_style.BAND_FILLS[0], histtype="stepfilled",
-                            density=True, label="ok trials")
+                            density=True)
                     if samples is not None:
                         ax.hist(samples[names[i]], bins=30, histtype="step", density=True,
-                                color=_style.POSTERIOR, lw=1.2, label="posterior")
+                                color=_style.POSTERIOR, lw=1.2)
                     ax.set_yticks([])
                 else:
+                    ax.yaxis.set_major_locator(MaxNLocator(4))
                     xj = trials[names[j]].to_numpy(dtype=float)
                     yi = trials[names[i]].to_numpy(dtype=float)
+                    if samples is not None:  # under the trials, rasterised (a light SVG)
+                        ax.scatter(samples[names[j]], samples[names[i]], s=3.0,
+                                   color=_style.POSTERIOR, alpha=0.3, lw=0, marker=".",
+                                   rasterized=True, zorder=1)
                     mappable = ax.scatter(xj[ok], yi[ok], c=shade, cmap=_style.CMAP_REVERSED,
-                                          s=10, marker="o", lw=0)
+                                          s=16, marker="o", edgecolor="white", lw=0.4, zorder=2)
                     if (~ok).any():
-                        ax.scatter(xj[~ok], yi[~ok], marker="x", s=12, color=_style.FAIL,
-                                   lw=0.8)
-                    if samples is not None:
-                        ax.scatter(samples[names[j]], samples[names[i]], s=1.0,
-                                   color=_style.POSTERIOR, alpha=0.25, lw=0, marker=".")
+                        ax.scatter(xj[~ok], yi[~ok], marker="x", s=14, color=_style.FAIL,
+                                   lw=0.9, zorder=3)
                 if i == d - 1:
-                    ax.set_xlabel(f"{names[j]} [{units[j]}]")
+                    ax.set_xlabel(label(j))
+                    ax.tick_params(axis="x", labelrotation=30)
                 else:
                     ax.tick_params(labelbottom=False)
                 if j == 0 and i != 0:
-                    ax.set_ylabel(f"{names[i]} [{units[i]}]")
-                elif i == j == 0:
-                    ax.set_ylabel(f"{names[i]} [{units[i]}]")
+                    ax.set_ylabel(label(i))
                 else:
                     ax.tick_params(labelleft=False)
+        fig.align_labels()
+        handles = [Patch(color=_style.BAND_FILLS[0], label="ok trials (histogram)"),
+                   Line2D([], [], marker="o", ls="none", color=_style.MEDIAN, label="ok trials, "
+                          "shaded by misfit")]
+        if (~ok).any():
+            handles.append(Line2D([], [], marker="x", ls="none", color=_style.FAIL,
+                                  label="failed trials"))
+        if samples is not None:
+            handles += [Line2D([], [], color=_style.POSTERIOR, lw=1.2, label="posterior (histogram)"),
+                        Line2D([], [], marker=".", ls="none", color=_style.POSTERIOR,
+                               label="posterior sample")]
         if mappable is not None:
-            cbar = fig.colorbar(mappable, ax=axes.ravel().tolist(), shrink=0.6)
+            cax = fig.add_axes((1.0 - 0.95 / width, 0.95 / height, 0.18 / width, 0.45))
+            cbar = fig.colorbar(mappable, cax=cax)
             cbar.set_label("log10 reduced chi-square [-]")
-        axes[0, 0].legend(loc="upper right", fontsize=7)
+        # the empty upper triangle holds the legend, clear of every panel
+        fig.legend(handles=handles, loc="upper right", bbox_to_anchor=(0.99, 0.99), fontsize=7.5)
     _style.save(fig, paths)
     return fig

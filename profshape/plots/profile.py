@@ -27,6 +27,9 @@ def plot_profile_band(
     labels: Iterable[str] | None = None,
     channel_length_m: float | None = None,
     log_scale: bool = True,
+    reference: Any = None,
+    magnetic_field_T: Any = None,
+    points: Any = None,
 ) -> Any:
     """Credible band of the anomalous profile with the best (MAP) shape.
 
@@ -41,6 +44,15 @@ def plot_profile_band(
     channel_length_m : float, optional
         Marks the channel exit with a vertical line [m].
     log_scale : bool, default=True
+    reference : dict, optional
+        A reference profile (``reference.json``: ``label``, ``quantity``
+        ``"bohm"`` or ``"frequency"``, ``profile`` with ``z_m`` and ``value``),
+        overlaid. Converted to the band's quantity with ``magnetic_field_T``
+        when they differ (skipped when no field is given).
+    magnetic_field_T : callable, optional
+        ``B(z_m)`` [T] of the device (times each point's ``magnetic_field_scale``).
+    points : mapping of label to OperatingPoint, optional
+        For the field scale of each point.
 
     Returns
     -------
@@ -78,6 +90,9 @@ def plot_profile_band(
             if "map" in f:
                 ax.plot(z, f["map"], color=_style.BEST, lw=1.6,
                         ls=_style.DASHES[k % len(_style.DASHES)], label="best shape (MAP)" + suffix)
+        ref = _reference_values(reference, quantity, magnetic_field_T, points, unique)
+        if ref is not None:
+            ax.plot(1e3 * ref[0], ref[1], color=_style.REFERENCE, ls="-.", lw=1.4, label=ref[2])
         if channel_length_m is not None:
             ax.axvline(1e3 * channel_length_m, color=_style.INK, lw=0.8, ls=":")
             ax.annotate("channel exit", (1e3 * channel_length_m, 1.0),
@@ -90,3 +105,28 @@ def plot_profile_band(
         ax.legend(loc="best")
     _style.save(fig, paths)
     return fig
+
+
+def _reference_values(reference: Any, quantity: str, field: Any, points: Any, labels: list[str]
+                      ) -> tuple[np.ndarray, np.ndarray, str] | None:
+    """The reference profile in the band's quantity, or None if it cannot be converted."""
+    from ..profile import electron_gyrofrequency
+    from ..reference import reference_profile
+
+    if not reference or not reference.get("profile"):
+        return None
+    z_tab = np.asarray(reference["profile"]["z_m"], dtype=float)
+    z = np.linspace(float(z_tab.min()), float(z_tab.max()), 300)
+    kind = str(reference.get("quantity", "bohm"))
+    prof = reference_profile(z_tab, np.asarray(reference["profile"]["value"], dtype=float), kind)
+    values = prof(z)
+    name = str(reference.get("label") or "reference")
+    want = "bohm" if quantity == "bohm_coefficient" else "frequency"
+    if want == kind:
+        return z, values, name
+    if not callable(field):
+        return None
+    point = (points or {}).get(labels[0]) if labels else None
+    scale = float(getattr(point, "magnetic_field_scale", 1.0))
+    omega = electron_gyrofrequency(np.asarray(field(z), dtype=float) * scale)
+    return z, (values * omega if want == "frequency" else values / omega), name

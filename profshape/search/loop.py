@@ -143,6 +143,11 @@ def _result(future: Future) -> Prediction:
     try:
         out = future.result()
     except BrokenExecutor as exc:
+        from ..executors import spawn_bootstrap_failure
+
+        bootstrap = spawn_bootstrap_failure()
+        if bootstrap is not None:
+            return Prediction.failure("failed", f"{WORKER_DIED}: {bootstrap}")
         return Prediction.failure(
             "failed",
             f"{WORKER_DIED}: {type(exc).__name__}: {exc} (a forward run in flight at the "
@@ -399,6 +404,9 @@ def run_search(
     ForwardModelError
         If the forward model cannot be sent to the executor.
     """
+    from ..executors import refuse_in_spawn_bootstrap
+
+    refuse_in_spawn_bootstrap()  # a spawned worker re-running an unguarded script: say so
     if not isinstance(settings, SearchSettings):
         raise ConfigError(f"settings must be a SearchSettings; got {type(settings).__name__}.")
     log_path = Path(log_path)
@@ -421,7 +429,10 @@ def run_search(
 
         executor = renew()
     runner = _Runner(problem, executor, renew)
-    progress = SearchProgress(settings.budget, settings.progress, initial=search.n_finished)
+    done_best = search.best()
+    progress = SearchProgress(settings.budget, settings.progress, initial=search.n_finished,
+                              best=math.inf if done_best is None else done_best.value,
+                              n_failed=search.n_failed)
     stop_reason: str | None = None
     same = _SameFailures(max_same_failures)
 

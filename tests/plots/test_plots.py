@@ -86,7 +86,7 @@ def test_plot_fit(calibration, tmp_path):
     fig = plot_fit(c["problem"].dataset, c["bands"],
                    paths=[tmp_path / "fit.png", tmp_path / "fit.svg"])
     _check_written(fig, tmp_path, "fit")
-    assert sum(ax.get_visible() for ax in fig.axes) == 2
+    assert sum(ax.get_visible() for ax in fig.axes) == 4  # a fit and its residuals per point
     best = best_fit_from_trials(c["trials"])
     assert set(best) == {"300V", "250V"}
     np.testing.assert_allclose(best["300V"]["z_m"], GRID_M)
