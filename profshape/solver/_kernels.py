@@ -192,6 +192,7 @@ def march(
     nu_tot = np.empty(n)
     nu_w = np.empty(n)  # ion wall-loss frequency [1/s]
     wloss = np.empty(n)  # electron wall energy loss per electron per second / T_e [1/s]
+    wslope = np.empty(n)  # d(wall power per electron)/dT_e [1/s]
     see = np.empty(n)
     k_in = np.empty(n)  # ion-neutral momentum-transfer frequency [1/s]
     p = np.empty(n)
@@ -276,6 +277,17 @@ def march(
             if lnr < 0.0:
                 lnr = 0.0
             wloss[i] = nuw * (2.0 / one_m + lnr)
+            # slope of the wall power in T_e (Newton linearisation: the yield makes the
+            # loss steep near saturation, and a lagged yield rings at a few steps' period)
+            t1 = 1.02 * tt
+            sig1 = see_prefactor * t1**see_exponent if see_exponent != 0.0 else see_prefactor
+            if sig1 > see_max:
+                sig1 = see_max
+            lnr1 = sheath_log_ratio + math.log(1.0 - sig1)
+            if lnr1 < 0.0:
+                lnr1 = 0.0
+            w1 = nuw * math.sqrt(1.02) * (2.0 / (1.0 - sig1) + lnr1) * t1
+            wslope[i] = max((w1 - wloss[i] * tt) / (0.02 * tt), 0.0)
             nu = nn[i] * ken + nb[i] * ken + nu_ei + nuw / one_m + nu_anom[i]
             nu_tot[i] = nu
             om = omega_ce[i]
@@ -389,7 +401,9 @@ def march(
             h = -ge * ef[i]  # Ohmic heating j_e . E [eV m^-3 s^-1]
             inv_t = 1.0 / te[i]
             # losses: inelastic (ionization + excitation) and wall (sheath) losses
-            lossc[i] = ne[i] * (nn[i] + nb[i]) * kloss[i] * inv_t + ne[i] * wloss[i]
+            # wall power W(T) linearised about the old T: W0 + W'(T - T0)
+            lossc[i] = ne[i] * (nn[i] + nb[i]) * kloss[i] * inv_t + ne[i] * wslope[i]
+            h += ne[i] * (wslope[i] - wloss[i]) * te[i]
             if h < 0.0:
                 lossc[i] += -h * inv_t
                 h = 0.0
