@@ -346,10 +346,13 @@ def march(
                 dt = dt_acc
         if dt > dt_max:
             dt = dt_max
-        if t + dt > t_end:
-            dt = t_end - t
         if dt <= 1e-13:
             return TIME_STEP_COLLAPSE, steps, t, floor_hits, n_samp, 0
+        if t + dt > t_end:
+            dt = t_end - t
+            if dt <= 1e-16 * t_end:  # rounding left a sliver of the interval: done
+                t = t_end
+                break
 
         # ---- 3.-5. heavy particles (SSP-RK2 or forward Euler) -----------
         _ion_fluxes(ni, gi, cs, muscl, fn, fg, ub0, 0.6065306597126334)

@@ -298,7 +298,7 @@ class _Case:
             sets.density_floor_m3, sets.electron_temperature_floor_eV,
             sets.electron_temperature_ceiling_eV, sets.cfl, sets.max_time_step_s,
             sets.ion_scheme_order == 2, sets.time_order == 2, 2.0 * self.v_max + 2e4,
-            _ANODE_FALL_MIN_TE, _ANODE_FALL_MAX_TE if _ANODE_FALL_MAX_TE is not None else self.sheath_log_ratio, _ANODE_FALL_TIME_S,
+            _ANODE_FALL_MIN_TE, self.sheath_log_ratio, _ANODE_FALL_TIME_S,
             t, t_end, sets.sample_interval_s, chunk_dt, acc, acc_g, samples, self.hit_kinds,
         )  # fmt: skip
 
@@ -306,7 +306,6 @@ class _Case:
 #: Most negative anode fall (electron-attracting sheath) in units of T_e at the anode;
 #: beyond about one T_e the electron flux saturates (common practice, no source).
 _ANODE_FALL_MIN_TE = -1.0
-_ANODE_FALL_MAX_TE = None  # None: the floating-wall value ln sqrt(M / (2 pi m_e))
 #: Relaxation time of the anode fall towards its current-balance value [s]
 #: (numerical; much shorter than the transit and breathing times).
 _ANODE_FALL_TIME_S = 2e-7
