@@ -125,7 +125,8 @@ def grid_error() -> None:
     profile = default_profile(device)
     vals = {}
     for n in (160, 320, 640, 1280):
-        r = solve(device, point, profile, SolverSettings(n_cells=n, max_time_s=2e-3))
+        r = solve(device, point, profile, SolverSettings(n_cells=n, max_time_s=3e-3, tolerance=1e-4,
+                                                        mass_tolerance=2e-3))
         vals[n] = (r.globals.get("discharge_current_A", float("nan")),
                    r.globals.get("thrust_N", float("nan")), r.status)
         print(f"  {n:5d} cells: I_d {vals[n][0]:.4f} A, thrust {1e3 * vals[n][1]:.3f} mN "

@@ -66,12 +66,15 @@ N_GLOBALS = 15
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _minmod(a, b):
-    if a * b <= 0.0:
+def _limited_slope(a, b):
+    """Van Leer's harmonic slope limiter 2ab / (a + b), 0 at extrema (van Leer 1974).
+
+    Clips less than minmod, so smooth extrema keep more of the second-order accuracy.
+    """
+    ab = a * b
+    if ab <= 0.0:
         return 0.0
-    if abs(a) < abs(b):
-        return a
-    return b
+    return 2.0 * ab / (a + b)
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
@@ -107,50 +110,67 @@ def _heavy_rhs(i, nn, nb, ni, gi, ne, ef, kiz, nu_w, k_in, u_n, e_over_m, fn, fg
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _ion_fluxes(ni, gi, cs, muscl, fn, fg, ub0, presheath):
-    """Rusanov face fluxes of ion number and momentum/M; returns nothing (fills fn, fg)."""
+def _ion_fluxes(ni, gi, cs, muscl, fn, fg, uw, sn, su, presheath):
+    """Rusanov face fluxes of ion number and momentum/M (fills fn, fg; uw, sn, su work)."""
     n = ni.shape[0]
-    inv0 = 1.0 / ni[0]
-    u0 = gi[0] * inv0
+    for i in range(n):
+        uw[i] = gi[i] / ni[i]
+    sn[0] = 0.0
+    su[0] = 0.0
+    sn[n - 1] = 0.0
+    su[n - 1] = 0.0
+    for i in range(1, n - 1):
+        if muscl:
+            sn[i] = 0.5 * _limited_slope(ni[i] - ni[i - 1], ni[i + 1] - ni[i])
+            su[i] = 0.5 * _limited_slope(uw[i] - uw[i - 1], uw[i + 1] - uw[i])
+        else:
+            sn[i] = 0.0
+            su[i] = 0.0
+    u0 = uw[0]
     if u0 > -cs[0]:  # subsonic towards the anode: Bohm flux at the pre-sheath density
         fn[0] = -presheath * ni[0] * cs[0]
         fg[0] = fn[0] * (-cs[0])
     else:
         fn[0] = gi[0]
         fg[0] = gi[0] * u0
-    ub0[0] = fn[0]
     for f in range(1, n):
         l = f - 1
-        r = f
-        nlc = ni[l]
-        nrc = ni[r]
-        ulc = gi[l] / nlc
-        urc = gi[r] / nrc
-        nl = nlc
-        ul = ulc
-        nr = nrc
-        ur = urc
-        if muscl:
-            if l >= 1:
-                unl = gi[l - 1] / ni[l - 1]
-                nl = nlc + 0.5 * _minmod(nlc - ni[l - 1], nrc - nlc)
-                ul = ulc + 0.5 * _minmod(ulc - unl, urc - ulc)
-            if r <= n - 2:
-                unr = gi[r + 1] / ni[r + 1]
-                nr = nrc - 0.5 * _minmod(nrc - nlc, ni[r + 1] - nrc)
-                ur = urc - 0.5 * _minmod(urc - ulc, unr - urc)
-        a = max(abs(ul) + cs[l], abs(ur) + cs[r])
+        nl = ni[l] + sn[l]
+        ul = uw[l] + su[l]
+        nr = ni[f] - sn[f]
+        ur = uw[f] - su[f]
+        a = max(abs(ul) + cs[l], abs(ur) + cs[f])
         gl = nl * ul
         gr = nr * ur
         fn[f] = 0.5 * (gl + gr) - 0.5 * a * (nr - nl)
         fg[f] = 0.5 * (gl * ul + gr * ur) - 0.5 * a * (gr - gl)
-    un = gi[n - 1] / ni[n - 1]
     if gi[n - 1] > 0.0:
         fn[n] = gi[n - 1]
-        fg[n] = gi[n - 1] * un
+        fg[n] = gi[n - 1] * uw[n - 1]
     else:  # never let the cathode plane feed ions in
         fn[n] = 0.0
         fg[n] = 0.0
+
+
+@njit(cache=True, inline="always", fastmath=_FM)
+def _neutral_fluxes(nn, nb, u_n, u_b, fnn, fnb, muscl):
+    """Upwind neutral face fluxes with van Leer-limited linear reconstruction.
+
+    fnn[1..n] (anode gas, moving downstream) and fnb[0..n-1] (ingested gas, moving
+    upstream); the boundary faces fnn[0] and fnb[n] are set by the caller.
+    """
+    n = nn.shape[0]
+    for f in range(1, n + 1):
+        l = f - 1
+        v = nn[l]
+        if muscl and 1 <= l <= n - 2:
+            v += 0.5 * _limited_slope(nn[l] - nn[l - 1], nn[l + 1] - nn[l])
+        fnn[f] = u_n * v
+    for f in range(n):
+        v = nb[f]
+        if muscl and 1 <= f <= n - 2:
+            v -= 0.5 * _limited_slope(nb[f] - nb[f - 1], nb[f + 1] - nb[f])
+        fnb[f] = -u_b * v
 
 
 @njit(cache=True, fastmath=_FM, nogil=True)
@@ -158,7 +178,7 @@ def march(
     nn, nb, ni, gi, te, sheath,  # state (modified in place) [m^-3 x3, m^-2 s^-1, eV, V]
     dz, area, ion_mass, u_n, u_b, gamma_in, gamma_bg, v_d, te_cath,
     omega_ce, nu_anom, wall_frac, wall_rate_factor,
-    see_prefactor, see_exponent, see_max, sheath_log_ratio,
+    w_inv_tab, w_pow_tab, w_slope_tab,
     rate_t0, rate_inv_dt, k_iz_tab, k_loss_tab, k_en_tab,
     cex_a, cex_b, k_elastic, v_n_thermal,
     n_floor, te_floor, te_ceiling, cfl, dt_max, muscl, rk2, u_guard,
@@ -217,7 +237,9 @@ def march(
     src0 = np.empty(n)
     phi = np.empty(n + 1)
     fn0_save = np.empty(n + 1)
-    ub0 = np.empty(1)
+    uw = np.empty(n)
+    sn = np.empty(n)
+    su = np.empty(n)
     inv_dz = 1.0 / dz
 
     t = t_start
@@ -262,50 +284,37 @@ def march(
             if steps % 8 == 0:  # the Coulomb logarithm varies slowly: refresh every 8 steps
                 lnl[i] = coulomb_log_nrl(ne[i], tt)
             nu_ei = 2.91e-12 * ne[i] * lnl[i] / (tt * sq_t)
-            # walls: Bohm flux at the pre-sheath density, 2 walls per gap width; secondary
-            # yield sigma(T_e) capped at the space-charge-saturated value
-            sig = see_prefactor * tt**see_exponent if see_exponent != 0.0 else see_prefactor
-            if sig > see_max:
-                sig = see_max
-            see[i] = sig
-            nuw = wall_frac[i] * wall_rate_factor * cs[i]
+            # walls (tabulated in T_e, see model._wall_tables): Bohm ion flux at the
+            # pre-sheath density on both walls, primary electrons nu_w / (1 - sigma), wall
+            # power per electron and its slope in T_e for the Newton linearisation
+            cw = wall_frac[i] * wall_rate_factor
+            nuw = cw * cs[i]
             nu_w[i] = nuw
-            one_m = 1.0 - sig
-            # primary electrons collected: nu_w / (1 - sigma); each removes 2 T_e + (1 - sigma)
-            # phi_s, phi_s = T_e ln((1 - sigma) sqrt(M / (2 pi m_e)))
-            lnr = sheath_log_ratio + math.log(one_m)
-            if lnr < 0.0:
-                lnr = 0.0
-            wloss[i] = nuw * (2.0 / one_m + lnr)
-            # slope of the wall power in T_e (Newton linearisation: the yield makes the
-            # loss steep near saturation, and a lagged yield rings at a few steps' period)
-            t1 = 1.02 * tt
-            sig1 = see_prefactor * t1**see_exponent if see_exponent != 0.0 else see_prefactor
-            if sig1 > see_max:
-                sig1 = see_max
-            lnr1 = sheath_log_ratio + math.log(1.0 - sig1)
-            if lnr1 < 0.0:
-                lnr1 = 0.0
-            w1 = nuw * math.sqrt(1.02) * (2.0 / (1.0 - sig1) + lnr1) * t1
-            wslope[i] = max((w1 - wloss[i] * tt) / (0.02 * tt), 0.0)
-            nu = nn[i] * ken + nb[i] * ken + nu_ei + nuw / one_m + nu_anom[i]
+            inv1m = w_inv_tab[kt] + ft * (w_inv_tab[kt + 1] - w_inv_tab[kt])
+            wpow = w_pow_tab[kt] + ft * (w_pow_tab[kt + 1] - w_pow_tab[kt])
+            wsl = w_slope_tab[kt] + ft * (w_slope_tab[kt + 1] - w_slope_tab[kt])
+            see[i] = 1.0 - 1.0 / inv1m
+            wloss[i] = cw * wpow / tt  # per electron per second / T_e
+            wslope[i] = cw * wsl if wsl > 0.0 else 0.0
+            nu = (nn[i] + nb[i]) * ken + nu_ei + nuw * inv1m + nu_anom[i]
             nu_tot[i] = nu
             om = omega_ce[i]
             # mu = (e/m) / nu / (1 + (om/nu)^2) = (e/m) nu / (nu^2 + om^2)
             inv_mu[i] = (nu * nu + om * om) / (mu_pref * nu)
             p[i] = ne[i] * tt
-            # charge exchange (sigma = (a - b log10 E) m^2, E the ion energy in the neutral
-            # frame [eV]) at the relative speed with the neutral thermal spread, plus the
-            # velocity-independent elastic (polarization) rate
-            du = ui[i] - u_n
-            g = math.sqrt(du * du + v_n_thermal * v_n_thermal)
-            e_rel = 0.5 * du * du / e_over_m
-            if e_rel < 0.1:
-                e_rel = 0.1
-            sig_cx = cex_a - cex_b * math.log10(e_rel)
-            if sig_cx < 0.0:
-                sig_cx = 0.0
-            k_in[i] = (nn[i] + nb[i]) * (sig_cx * g + k_elastic)
+            if steps % 4 == 0:  # ion-neutral drag varies slowly: refresh every 4 steps
+                # charge exchange (sigma = (a - b log10 E) m^2, E the ion energy in the
+                # neutral frame [eV]) at the relative speed with the neutral thermal
+                # spread, plus the velocity-independent elastic (polarization) rate
+                du = ui[i] - u_n
+                g = math.sqrt(du * du + v_n_thermal * v_n_thermal)
+                e_rel = 0.5 * du * du / e_over_m
+                if e_rel < 0.1:
+                    e_rel = 0.1
+                sig_cx = cex_a - cex_b * math.log10(e_rel)
+                if sig_cx < 0.0:
+                    sig_cx = 0.0
+                k_in[i] = (nn[i] + nb[i]) * (sig_cx * g + k_elastic)
         if amax > u_guard:
             k_bad = 0
             for i in range(n):
@@ -355,16 +364,13 @@ def march(
                 break
 
         # ---- 3.-5. heavy particles (SSP-RK2 or forward Euler) -----------
-        _ion_fluxes(ni, gi, cs, muscl, fn, fg, ub0, 0.6065306597126334)
+        _ion_fluxes(ni, gi, cs, muscl, fn, fg, uw, sn, su, 0.6065306597126334)
         for f in range(n + 1):
             fn0_save[f] = fn[f]
         fnb[n] = -gamma_bg
-        for f in range(n):
-            fnb[f] = -u_b * nb[f]
+        _neutral_fluxes(nn, nb, u_n, u_b, fnn, fnb, muscl)
         # anode: injected flow + ions recombined on the anode + ingested gas re-emitted
         fnn[0] = gamma_in - fn[0] - fnb[0]
-        for f in range(1, n + 1):
-            fnn[f] = u_n * nn[f - 1]
         for i in range(n):
             src0[i] = ne[i] * kiz[i] * (nn[i] + nb[i]) - nu_w[i] * ni[i]
         for i in range(n):
@@ -380,12 +386,9 @@ def march(
                     ni1[i] = n_floor
                     gi1[i] = 0.0
             # second stage with the stage-1 state; E, rates and T_e frozen over the step
-            _ion_fluxes(ni1, gi1, cs, muscl, fn, fg, ub0, 0.6065306597126334)
-            for f in range(n):
-                fnb[f] = -u_b * nb1[f]
+            _ion_fluxes(ni1, gi1, cs, muscl, fn, fg, uw, sn, su, 0.6065306597126334)
+            _neutral_fluxes(nn1, nb1, u_n, u_b, fnn, fnb, muscl)
             fnn[0] = gamma_in - fn[0] - fnb[0]
-            for f in range(1, n + 1):
-                fnn[f] = u_n * nn1[f - 1]
             for i in range(n):
                 dnn, dnb, dni, dgi = _heavy_rhs(i, nn1, nb1, ni1, gi1, ne, ef, kiz, nu_w,
                                                 k_in, u_n, e_over_m, fn, fg, fnn, fnb,
@@ -427,9 +430,16 @@ def march(
             r = f
             gef = fn0_save[f] - jflux  # electron flux at the face
             kf = 0.5 * (kap[l] + kap[r]) * inv_dz
-            # convection 2.5 gef T_upwind, conduction -kf (T_r - T_l)
-            cp = 2.5 * max(gef, 0.0)
-            cm = 2.5 * min(gef, 0.0)
+            # convection 2.5 gef T_face, conduction -kf (T_r - T_l); T_face central
+            # (second order) where the cell Peclet number 2.5 |gef| / kf <= 2, upwind
+            # beyond (hybrid scheme, Spalding 1972: keeps the matrix an M-matrix)
+            conv = 2.5 * gef
+            if abs(conv) <= 2.0 * kf:
+                cp = 0.5 * conv
+                cm = 0.5 * conv
+            else:
+                cp = max(conv, 0.0)
+                cm = min(conv, 0.0)
             a_di[l] += (cp + kf) * inv_dz
             a_up[l] += (cm - kf) * inv_dz
             a_di[r] += (-cm + kf) * inv_dz

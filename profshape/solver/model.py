@@ -92,7 +92,7 @@ from .magnetic import TabulatedField
 from .rates import _supported, rate_set
 from .results import SolverResult
 from .settings import SolverSettings
-from .walls import PRESHEATH_DENSITY_FACTOR, saturated_yield, yield_law
+from .walls import PRESHEATH_DENSITY_FACTOR, secondary_yield
 
 __all__ = ["grid", "solve"]
 
@@ -269,15 +269,13 @@ class _Case:
             0.5 * (1.0 - np.tanh((self.z - device.channel_length_m) / width))
         )
         self.wall_rate_factor = sets.wall_loss_scale * 2.0 * PRESHEATH_DENSITY_FACTOR / gap
-        self.see_prefactor, self.see_exponent = yield_law(
-            sets.wall_material, sets.wall_secondary_yield
-        )
-        self.see_max = min(saturated_yield(prop.ion_mass_kg), 0.98)
         self.sheath_log_ratio = math.log(math.sqrt(self.mass / (2.0 * math.pi * constants.m_e)))
+        self.rates = rate_set(prop.name)
+        self.wall_tables = _wall_tables(sets.wall_material, sets.wall_secondary_yield,
+                                        prop.ion_mass_kg, self.mass, self.rates)  # fmt: skip
         scale = sets.ion_neutral_collision_scale
         self.cex_a, self.cex_b = (scale * c for c in CHARGE_EXCHANGE_FITS[prop.name])
         self.k_elastic = scale * langevin_rate(prop)
-        self.rates = rate_set(prop.name)
         self.hit_kinds = np.zeros(3, dtype=np.int64)
 
     def initial_state(self):
@@ -292,7 +290,7 @@ class _Case:
             nn, nb, ni, gi, te, sheath, self.dz, self.area, self.mass, self.u_n, self.u_b,
             self.gamma_in, self.gamma_bg, self.v_d, self.device.cathode_electron_temperature_eV,
             self.omega_ce, self.nu_anom, self.wall_frac, self.wall_rate_factor,
-            self.see_prefactor, self.see_exponent, self.see_max, self.sheath_log_ratio,
+            *self.wall_tables,
             r.t0_eV, 1.0 / r.dt_eV, r.ionization_m3_s, r.energy_loss_eV_m3_s, r.momentum_m3_s,
             self.cex_a, self.cex_b, self.k_elastic, self.u_n,
             sets.density_floor_m3, sets.electron_temperature_floor_eV,
@@ -309,6 +307,25 @@ _ANODE_FALL_MIN_TE = -1.0
 #: Relaxation time of the anode fall towards its current-balance value [s]
 #: (numerical; much shorter than the transit and breathing times).
 _ANODE_FALL_TIME_S = 2e-7
+
+
+def _wall_tables(material, constant_yield, ion_mass, mass, rates):
+    """Wall terms tabulated on the rate tables' T_e grid (per unit wall_frac * rate factor).
+
+    Returns 1 / (1 - sigma), the wall power per electron
+    P(T) = sqrt(e T / M) T (2 / (1 - sigma) + ln((1 - sigma) sqrt(M / (2 pi m_e))))
+    [eV/s per unit rate factor] and dP/dT, with sigma(T_e) the capped yield of
+    :func:`profshape.solver.walls.secondary_yield`.
+    """
+    n_tab = rates.ionization_m3_s.size
+    t = np.maximum(rates.t0_eV + rates.dt_eV * np.arange(n_tab), 1e-3)
+    sigma = np.minimum(secondary_yield(material, t, ion_mass, constant_yield), 0.98)
+    log_ratio = math.log(math.sqrt(mass / (2.0 * math.pi * constants.m_e)))
+    inv1m = 1.0 / (1.0 - sigma)
+    per = 2.0 * inv1m + np.maximum(log_ratio + np.log(1.0 - sigma), 0.0)
+    power = np.sqrt(constants.e * t / mass) * t * per  # the kernel's c_s uses the atom mass
+    slope = np.gradient(power, t)
+    return tuple(np.ascontiguousarray(x) for x in (inv1m, power, slope))
 
 
 def _new_acc(n_chunks: int, n: int):
