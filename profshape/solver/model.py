@@ -3,73 +3,107 @@
 Model
 -----
 Axial coordinate z from the anode (z = 0) to the cathode plane
-(z = ``domain_length_m``), annular cross-section A, uniform cells.
+(z = ``domain_length_m``), annular cross-section A, uniform cells. Wall terms
+act inside the channel and fade out smoothly across the exit plane,
+w(z) = (1 - tanh((z - L_ch) / delta)) / 2 with delta =
+``wall_transition_gaps`` channel gaps h = r_o - r_i (no step).
 
-Neutrals (density n_n, fixed drift speed u_n = sqrt(8 k T_a / (pi M)), the
-mean thermal speed at the anode temperature)::
+Neutrals: anode gas n_n drifting downstream at the mean thermal speed at the
+anode temperature u_n = sqrt(8 k T_a / (pi M)), and ingested background gas
+n_b drifting upstream at u_b = sqrt(2 k T_bg / (pi M)) (the mean axial speed of
+the inward half-Maxwellian)::
 
-    dn_n/dt + d(n_n u_n)/dz = -n_e n_n k_iz(T_e)
+    dn_n/dt + d(n_n u_n)/dz = -n_e n_n k_iz(T_e) + nu_w n_i
+    dn_b/dt - d(n_b u_b)/dz = -n_e n_b k_iz(T_e)
 
-fed at the anode by the mass flow plus the ions recombining there.
+n_n is fed at the anode by the mass flow, the ions recombining on the anode
+and the ingested gas arriving there; n_b enters through the cathode plane with
+the free-molecular (Hertz-Knudsen) flux n_bg sqrt(k T_bg / (2 pi M)) per unit
+area, n_bg = p_bg / (k T_bg) from ``OperatingPoint.background_pressure_Pa``
+and ``background_temperature_K`` (0 Pa = space).
 
 Ions (singly charged, cold, density n_i = n_e, flux n_i u_i)::
 
-    dn_i/dt + d(n_i u_i)/dz = n_e n_n k_iz
-    d(n_i u_i)/dt + d(n_i u_i^2)/dz = (e/M) n_i E + n_e n_n k_iz u_n
+    dn_i/dt + d(n_i u_i)/dz = n_e (n_n + n_b) k_iz - nu_w n_i
+    d(n_i u_i)/dt + d(n_i u_i^2)/dz = (e/M) n_i E + n_e (n_n + n_b) k_iz u_n
+        - nu_w n_i u_i - nu_in n_i (u_i - u_n)
 
-with a Bohm-speed outflow (u_i <= -sqrt(e T_e / M)) into the anode and free
+with the wall loss frequency nu_w = w(z) 2 exp(-1/2) c_s / h (Bohm flux at
+the pre-sheath density on both walls, c_s = sqrt(e T_e / M)); the ions lost
+there recombine and are re-emitted as neutrals. nu_in = (n_n + n_b)
+(sigma_cx(E) g + k_L): resonant charge exchange and elastic (Langevin)
+momentum transfer, see :mod:`profshape.solver.ion_neutral`. Boundaries: a
+Bohm sink with the pre-sheath density factor into the anode, supersonic
 outflow at the cathode plane.
 
 Electrons (quasi-neutral, massless; generalized Ohm's law across B)::
 
     n_e u_e = -mu_perp (n_e E + d(n_e T_e)/dz),
     mu_perp = (e / (m_e nu)) / (1 + (omega_ce/nu)^2),
-    nu = nu_en + nu_ei + nu_wall + nu_anom
+    nu = nu_en + nu_ei + nu_w / (1 - sigma) + nu_anom
 
-with nu_en = n_n k_en, nu_ei from the NRL Plasma Formulary, nu_anom from the
-anomalous profile (Bohm-like coefficient times omega_ce, or a frequency) and
-nu_wall the rate of electron collection by the channel walls (inside the
-channel only, see below). Current continuity makes
-j = e n (u_i - u_e) uniform in z; integrating E between anode (potential
-V_d) and cathode plane (potential 0) gives j, hence the discharge current
+with nu_en = (n_n + n_b) k_en, nu_ei from the NRL Plasma Formulary, nu_anom
+from the anomalous profile and nu_w / (1 - sigma) the rate at which primary
+electrons reach the walls (secondary yield sigma). Current continuity makes
+j = e n (u_i - u_e) uniform in z; integrating E from the anode sheath edge
+(potential V_d + Delta) to the cathode plane (potential 0) gives j, hence
 I_d = j A, and E(z).
+
+Anode sheath: the fall Delta = T_e ln(Gamma_th / Gamma_req) between the
+plasma at the sheath edge and the anode lets through the electron flux the
+plasma needs, Gamma_req, out of the random flux Gamma_th = n_e v_e / 4
+(electron-repelling for Delta > 0); it is bounded by the floating value
+T_e ln sqrt(M / (2 pi m_e)) above and by -T_e below, and relaxes towards its
+target over 0.2 us.
 
 Electron energy (T_e in eV)::
 
     d(3/2 n_e T_e)/dt + d/dz(5/2 n_e u_e T_e - kappa dT_e/dz)
-        = -n_e u_e E - n_e n_n (k_iz E_iz + k_ex E_ex) - W_wall
+        = -n_e u_e E - n_e (n_n + n_b)(k_iz E_iz + k_ex E_ex) - W_wall
 
-with kappa = 5/2 n_e T_e mu_perp. Wall losses inside the channel follow the
-floating-sheath model with secondary electron emission of Hobbs and Wesson
-(Plasma Physics 9, 85, 1967), as used for Hall-effect-thruster channels by e.g.
-Barral et al. (Phys. Plasmas 10, 4137, 2003): ions reach the two walls at the
-Bohm speed with the pre-sheath density 0.61 n_e, so the electron collection
-frequency is nu_wall = 1.22 c_s / ((r_o - r_i)(1 - sigma)), and each
-collected electron removes 2 T_e + (1 - sigma) phi_s with
-phi_s = T_e ln((1 - sigma) sqrt(M / (2 pi m_e))), sigma the effective
-secondary yield (``SolverSettings.wall_secondary_yield``).
+with kappa = 5/2 n_e T_e mu_perp. The wall loss follows the floating sheath
+with secondary emission of Hobbs and Wesson (Plasma Physics 9, 85, 1967):
+each primary electron removes 2 T_e + (1 - sigma) phi_s, phi_s = T_e
+ln((1 - sigma) sqrt(M / (2 pi m_e))), with sigma(T_e) the yield of the wall
+material capped at the space-charge-saturated value (see
+:mod:`profshape.solver.walls`). At the cathode plane T_e equals
+``Device.cathode_electron_temperature_eV`` (half a cell beyond the last cell
+centre); at the anode the conductive heat flux is zero and electrons leave
+with 2 T_e + Delta each (5/2 T_e for a negative fall).
 
-Boundary conditions for T_e: at the cathode plane T_e equals
-``Device.cathode_electron_temperature_eV`` (Dirichlet, half a cell beyond the
-last cell centre); at the anode the conductive heat flux is zero and
-electrons leave with their enthalpy flux 5/2 n_e u_e T_e.
+Numerics
+--------
+Finite volumes on a uniform grid. Ions: Rusanov fluxes with a linear
+reconstruction of density and velocity limited by van Leer's harmonic limiter
+(``ion_scheme_order=1`` gives first order); neutrals: upwind fluxes with the
+same reconstruction. Ions and neutrals advance with SSP-RK2 (Shu and Osher
+1988; ``time_order=1``: forward Euler) with E, rates and T_e frozen over the
+step; the time step is the smaller of a Courant number on |u_i| + c_s and the
+same number on the ion acceleration time sqrt(dz M / (e |E|)). Electron
+energy: backward Euler in T_e (one tridiagonal solve per step) with
+convection central where the cell Peclet number is below 2 and upwind beyond
+(hybrid scheme), the wall power linearised in T_e (Newton). The Coulomb
+logarithm is refreshed every 8 steps, the ion-neutral drag every 4. A run
+whose ion speed exceeds twice the energy bound plus 20 km/s is stopped
+("failed"). The start-up transient is marched on a coarser grid
+(``warmup_time_s``), then interpolated onto the solver grid.
 
-Numerics: finite volumes on a uniform grid. Ions: Rusanov (local
-Lax-Friedrichs) fluxes with MUSCL reconstruction of density and velocity
-(minmod slopes; ``ion_scheme_order=1`` gives first order); the time step is
-the smaller of a Courant number on |u_i| + c_s and the same number on the
-ion acceleration time sqrt(dz M / (e |E|)). Neutrals: upwind advection with
-an implicit ionization sink. Electron energy: backward Euler in T_e with
-first-order upwind convection (one tridiagonal solve per step). The Coulomb
-logarithm is refreshed every 8 steps. A run whose ion speed exceeds twice the
-energy bound plus 20 km/s is stopped as a numerical instability ("failed").
-The start-up transient is marched on a twice coarser grid
-(``warmup_time_s``), then interpolated onto the solver grid. The
-state is marched to a statistically steady state: after ``min_time_s`` the
-run is split into windows of ``window_s``; it stops when the last
-``n_average_windows`` windows agree in discharge current and exit ion
-velocity within ``tolerance`` and the heavy-particle balance closes within
-``mass_tolerance``. Results are time averages over those windows.
+Acceptance: after ``min_time_s`` the run is split into windows; it stops
+when the last ``n_average_windows`` windows agree in discharge current and
+exit ion velocity within ``tolerance`` and the heavy-particle balance closes
+within ``mass_tolerance``. A quiescent discharge (current rms below 1 %) is
+tested on windows of ``quiescent_window_fraction`` times ``window_s`` with the
+tolerance scaled by the same fraction (the same bound on the drift rate). An
+oscillating discharge is averaged over whole cycles; its tolerance widens with
+the cycle-to-cycle scatter by at most 2x, and it is accepted only once the
+averaging range holds ``min_oscillation_periods`` periods (status
+"oscillating", with rms, peak-to-peak amplitude and dominant frequency). A
+converged run whose potential rises more than ``energy_bound_tolerance`` V_d
+above V_d + Delta, or whose ions exceed sqrt(2 e phi_max / M) by that margin,
+is "failed" with the reason. Balances are accumulated independently: ions
+created (volume integral) against ions leaving through the anode, the cathode
+plane and the walls, and the time-averaged ion continuity per cell from face
+fluxes and sources.
 """
 
 from __future__ import annotations

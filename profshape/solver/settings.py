@@ -115,7 +115,8 @@ class SolverSettings:
         averaging window before the result is marked "not_converged".
     ion_scheme_order : {1, 2}, default=2
         Spatial order of the ion fluxes: 1 = first-order Rusanov, 2 = MUSCL
-        reconstruction of density and velocity with minmod slopes.
+        reconstruction of density and velocity (van Leer limiter; also used
+        for the neutrals).
     warmup_time_s : float, default=2.0e-4
         Start-up transient marched first on a grid ``warmup_coarsening``
         times coarser (cheaper), then interpolated onto the solver grid; the
