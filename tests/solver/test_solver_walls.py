@@ -97,13 +97,14 @@ def test_background_gas_is_ingested_at_the_free_molecular_rate_and_raises_curren
     device = demo_device()
     profile = default_profile(device)
     space = solve(device, OperatingPoint("s", 300.0, 4.5e-6), profile, COARSE)
-    tank = solve(device, OperatingPoint("t", 300.0, 4.5e-6, background_pressure_Pa=4e-3,
+    tank = solve(device, OperatingPoint("t", 300.0, 4.5e-6, background_pressure_Pa=3e-2,
                                         background_temperature_K=300.0), profile, COARSE)
     assert space.converged and tank.converged, (space.reason, tank.reason)
-    ref = 4e-3 * device.channel_area_m2 * np.sqrt(M_XE / (2 * np.pi * constants.k * 300.0))
+    ref = 3e-2 * device.channel_area_m2 * np.sqrt(M_XE / (2 * np.pi * constants.k * 300.0))
     assert tank.globals["ingested_mass_flow_kg_s"] == pytest.approx(ref, rel=1e-6)
     assert space.globals["ingested_mass_flow_kg_s"] == 0.0
-    # more neutrals to ionize: the discharge current rises (ground-test trend, common
-    # practice, no source), and the heavy-particle balance still closes (1 %)
-    assert tank.globals["discharge_current_A"] > space.globals["discharge_current_A"]
+    # more neutrals to ionize (5 % more gas): the discharge current rises by more than the
+    # convergence tolerance (ground-test trend, common practice, no source), and the
+    # heavy-particle balance still closes (1 %)
+    assert tank.globals["discharge_current_A"] > 1.008 * space.globals["discharge_current_A"]
     assert abs(tank.globals["mass_balance_error"]) <= 0.01
