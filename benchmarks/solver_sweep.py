@@ -10,8 +10,8 @@ xenon and krypton, a uniform Bohm-like anomalous coefficient 1e-4 to 1, and the
 grid (160 / 320 / 640 cells by default). Every run must end "ok",
 "oscillating", "not_converged" or "failed" with a reason; the script counts the
 statuses and lists every "ok"/"oscillating" run that breaks the ion energy
-bound (potential above V_d + anode fall + 2 %, or an ion faster than
-sqrt(2 e phi_max / M)) or whose "ok" current swings by more than 1 % rms, and
+bound (potential above V_d + anode fall + 2 % + 2 T_e, an ion faster than
+sqrt(2 e phi_max / M), or an exit energy above e (V_d + fall)) or whose "ok" current swings by more than 1 % rms, and
 every run that raised. ``--quick`` keeps the corners of the ranges only. The CI
 test ``tests/solver/test_solver_sweep.py`` runs a small subset.
 """
@@ -44,11 +44,14 @@ def check(result, point) -> str:
     v_d = point.discharge_voltage_V
     edge = v_d + max(g["anode_fall_V"], 0.0)
     phi = float(result.cells["potential_V"].max())
-    if phi > edge + 0.02 * v_d:
+    te0 = float(result.cells["electron_temperature_eV"].iloc[0])
+    if phi > edge + 0.02 * v_d + 2.0 * te0:
         return f"potential {phi:.1f} V above the sheath edge {edge:.1f} V"
     v_max = get_propellant(point.propellant).max_ion_velocity(max(edge, phi))
     if float(np.max(result.ion_velocity_m_s)) > 1.02 * v_max:
         return f"ion speed {np.max(result.ion_velocity_m_s):.0f} above the bound {v_max:.0f}"
+    if g["exit_ion_energy_eV"] > 1.02 * edge:
+        return f"exit ion energy {g['exit_ion_energy_eV']:.1f} eV above e (V_d + fall)"
     if result.status == "ok" and g["oscillation_relative_amplitude"] > 0.01:
         return f"'ok' with {g['oscillation_relative_amplitude']:.1%} rms"
     if result.status == "oscillating" and g["oscillation_periods"] < 5:

@@ -98,9 +98,10 @@ oscillating discharge is averaged over whole cycles; its tolerance widens with
 the cycle-to-cycle scatter by at most 2x, and it is accepted only once the
 averaging range holds ``min_oscillation_periods`` periods (status
 "oscillating", with rms, peak-to-peak amplitude and dominant frequency). A
-converged run whose potential rises more than ``energy_bound_tolerance`` V_d
-above V_d + Delta, or whose ions exceed sqrt(2 e phi_max / M) by that margin,
-is "failed" with the reason. Balances are accumulated independently: ions
+converged run whose potential rises above V_d + Delta by more than
+``energy_bound_tolerance`` V_d plus a pre-sheath of 2 T_e (anode), whose ions
+exceed sqrt(2 e phi_max / M) by that margin, or whose exit ion energy exceeds
+V_d + Delta by it, is "failed" with the reason (cells kept). Balances are accumulated independently: ions
 created (volume integral) against ions leaving through the anode, the cathode
 plane and the walls, and the time-averaged ion continuity per cell from face
 fluxes and sources.
@@ -469,6 +470,8 @@ class _Plan:
 _OSCILLATION_THRESHOLD = 0.01
 #: Largest factor by which the statistical allowance may widen the tolerance.
 _MAX_ALLOWANCE = 2.0
+#: Rise of the potential above the anode sheath edge allowed for the pre-sheath [T_e].
+_PRESHEATH_RISE_TE = 2.0
 
 
 def _upward_crossings(x: np.ndarray, band: float) -> np.ndarray:
@@ -754,15 +757,21 @@ def _assemble(acc_all, g_all, samples_all, span, plan, converged, reason, device
             f"{worst_kind} (limit {settings.max_floor_fraction:.2%}); {reason}"
         )
     margin = settings.energy_bound_tolerance
-    hump = phi_max - (v_d + max(sheath, 0.0))
-    if status in ("ok", "oscillating") and (u_peak > (1.0 + margin) * u_bound
-                                            or hump > margin * v_d):  # fmt: skip
+    edge = v_d + max(sheath, 0.0)
+    # the plasma may rise above the sheath edge by a Boltzmann pre-sheath of a couple of
+    # T_e at the anode (density ratio e^2; common practice, no source), no more
+    hump_allowed = margin * v_d + _PRESHEATH_RISE_TE * float(te[0])
+    if status in ("ok", "oscillating") and (
+        u_peak > (1.0 + margin) * u_bound
+        or phi_max - edge > hump_allowed
+        or exit_energy > (1.0 + margin) * edge
+    ):
         status = "failed"
         reason = (
             f"energy bound broken: peak ion speed {u_peak:.4g} m/s against "
             f"sqrt(2 e phi_max / M) = {u_bound:.4g} m/s, potential peak {phi_max:.4g} V "
-            f"against V_d + anode fall = {v_d + max(sheath, 0.0):.4g} V (margin "
-            f"{margin:.0%}); {reason}"
+            f"against V_d + anode fall = {edge:.4g} V (allowed rise {hump_allowed:.3g} V), "
+            f"exit ion energy {exit_energy:.4g} eV (margin {margin:.0%}); {reason}"
         )
     glob["status"] = status
     glob["converged"] = status in ("ok", "oscillating")

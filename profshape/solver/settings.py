@@ -108,8 +108,10 @@ class SolverSettings:
         rate, tolerance / window_s).
     energy_bound_tolerance : float, default=0.02
         Relative margin on the ion energy bound: a run whose peak ion speed
-        exceeds (1 + margin) sqrt(2 e phi_max / M), or whose potential rises
-        above V_d + anode fall by more than margin * V_d, is not "ok".
+        exceeds (1 + margin) sqrt(2 e phi_max / M), whose exit ion energy
+        exceeds (1 + margin) (V_d + anode fall), or whose potential rises
+        above V_d + anode fall by more than margin * V_d plus 2 T_e (the
+        anode pre-sheath), is "failed" with the reason.
     max_floor_fraction : float, default=0.02
         Largest fraction of cell-steps that may hit a floor or ceiling in the
         averaging window before the result is marked "not_converged".
