@@ -108,3 +108,20 @@ def test_background_gas_is_ingested_at_the_free_molecular_rate_and_raises_curren
     # heavy-particle balance still closes (1 %)
     assert tank.globals["discharge_current_A"] > 1.008 * space.globals["discharge_current_A"]
     assert abs(tank.globals["mass_balance_error"]) <= 0.01
+
+
+def test_oscillation_statistics_of_a_sine_history():
+    # closed forms for I(t) = I0 + A sin(2 pi f t): rms A / sqrt(2), peak to peak 2 A,
+    # dominant frequency f; periods counted between the first and last upward crossing
+    # (whole periods only, so at most one or two short of the 40 in the history)
+    from profshape.solver.model import _periods
+
+    dt, f, amp = 1e-7, 2.0e4, 0.3
+    t = np.arange(20000) * dt  # 2 ms: 40 periods
+    rms, p2p, freq, periods = _periods(5.0 + amp * np.sin(2 * np.pi * f * t), dt)
+    assert rms == pytest.approx(amp / np.sqrt(2), rel=1e-3)
+    assert p2p == pytest.approx(2 * amp, rel=1e-3)
+    assert freq == pytest.approx(f, rel=0.01)
+    assert 38 <= periods <= 40
+    # quiescent history (rms below 1 % of the mean): no frequency, no periods
+    assert _periods(5.0 + 0.01 * np.sin(2 * np.pi * f * t), dt)[2:] == (0.0, 0.0)
