@@ -50,6 +50,11 @@ def main(voltages: tuple[float, ...] = (300.0, 600.0)) -> None:
               f"{g['peak_electron_temperature_eV']:6.1f} {g['voltage_utilization']:6.3f} "
               f"{umax:6.3f} {g['anode_efficiency']:6.3f} {phimax:8.3f} "
               f"{g['wall_time_s']:7.2f}")
+        if "oscillation_peak_to_peak_A" in g:  # outputs added with issue 11
+            print(f"      current utilization {g['current_utilization']:.3f}, anode fall "
+                  f"{g['anode_fall_V']:.1f} V, wall ion current {g['wall_ion_current_A']:.2f} A, "
+                  f"rms {g['oscillation_relative_amplitude']:.1%}, peak to peak "
+                  f"{g['oscillation_peak_to_peak_A']:.3f} A, {g['oscillation_frequency_Hz']:.3g} Hz")
         sys.stdout.flush()
 
 
