@@ -5,6 +5,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from scipy import constants
+
 from .exceptions import InputDataError
 from .propellants import Propellant, get_propellant
 
@@ -25,6 +27,29 @@ def _positive(name: str, value: float, unit: str, label: str) -> float:
     return v
 
 
+def _nonnegative_pressure(value: float, label: str) -> float:
+    try:
+        v = float(value)
+    except (TypeError, ValueError):
+        raise InputDataError(
+            f"operating point {label!r}: background_pressure_Pa must be a number [Pa]; "
+            f"got {value!r}."
+        ) from None
+    if not math.isfinite(v) or v < 0.0:
+        raise InputDataError(
+            f"operating point {label!r}: background_pressure_Pa must be finite and >= 0 [Pa] "
+            f"(0 = space); got {value!r}. Give the facility pressure in pascal "
+            "(1 Torr = 133.322 Pa)."
+        )
+    if v > 1.0:
+        raise InputDataError(
+            f"operating point {label!r}: background_pressure_Pa = {v!r} Pa is far above any "
+            "thruster test facility (the free-molecular ingestion model needs < 1 Pa); give "
+            "the pressure in pascal, not in mTorr or mbar."
+        )
+    return v
+
+
 @dataclass(frozen=True)
 class OperatingPoint:
     """Settings of one operating point.
@@ -41,11 +66,21 @@ class OperatingPoint:
         Propellant name or symbol (see :mod:`profshape.propellants`).
     magnetic_field_scale : float, default=1.0
         Multiplier on the device's reference radial magnetic field [-].
+    background_pressure_Pa : float, default=0.0
+        Facility background (neutral) pressure [Pa] at the thruster exit;
+        0 means space. The built-in solver ingests the background gas through
+        the cathode plane as a free-molecular flux (see
+        :mod:`profshape.solver.model`). 1e-3 Pa is 7.5e-6 Torr.
+    background_temperature_K : float, default=300.0
+        Temperature of the background gas [K] (> 0); used only when
+        ``background_pressure_Pa`` > 0.
 
     Raises
     ------
     InputDataError
-        If a value is non-finite, not positive, or the propellant unknown.
+        If a value is non-finite, not positive (negative for the background
+        pressure), or the propellant unknown; the message names the field,
+        the value and the fix.
     """
 
     label: str
@@ -53,6 +88,8 @@ class OperatingPoint:
     anode_mass_flow_kg_s: float
     propellant: str = "xenon"
     magnetic_field_scale: float = 1.0
+    background_pressure_Pa: float = 0.0
+    background_temperature_K: float = 300.0
 
     def __post_init__(self) -> None:
         label = str(self.label).strip()
@@ -76,6 +113,16 @@ class OperatingPoint:
             "magnetic_field_scale",
             _positive("magnetic_field_scale", self.magnetic_field_scale, "-", label),
         )
+        object.__setattr__(
+            self,
+            "background_pressure_Pa",
+            _nonnegative_pressure(self.background_pressure_Pa, label),
+        )
+        object.__setattr__(
+            self,
+            "background_temperature_K",
+            _positive("background_temperature_K", self.background_temperature_K, "K", label),
+        )
         prop = get_propellant(self.propellant, field=f"operating point {label!r}: propellant")
         object.__setattr__(self, "propellant", prop.name)
 
@@ -92,4 +139,11 @@ class OperatingPoint:
             "anode_mass_flow_kg_s": self.anode_mass_flow_kg_s,
             "propellant": self.propellant,
             "magnetic_field_scale": self.magnetic_field_scale,
+            "background_pressure_Pa": self.background_pressure_Pa,
+            "background_temperature_K": self.background_temperature_K,
         }
+
+    @property
+    def background_density_m3(self) -> float:
+        """Background neutral density p / (k T) [m^-3] (ideal gas; 0 in space)."""
+        return self.background_pressure_Pa / (constants.k * self.background_temperature_K)

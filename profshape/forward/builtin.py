@@ -84,7 +84,7 @@ class BuiltinSolverModel(ForwardModel):
         from ..solver import solve
 
         result = solve(self.device, point, profile, self.settings)
-        if result.status != "ok":
+        if result.status not in ("ok", "oscillating"):  # oscillating: averages over >= 5 periods
             status = result.status if result.status in ("not_converged", "failed") else "failed"
             return Prediction.failure(status, f"solver: {result.reason}")
         scalars = {}

@@ -3,19 +3,32 @@
 Everything here works on plain float arrays in SI units, except electron
 temperatures and energies, which are in eV (and potentials in V). The public
 entry point is :func:`march`, called by :mod:`profshape.solver.model` once
-per averaging window.
+per group of averaging chunks.
 
 Scheme, per time step (see :mod:`profshape.solver.model` for the equations):
 
-1. rates, collision frequencies and the cross-field mobility from the state;
-2. the discharge current from the integral of Ohm's law between anode and
-   cathode plane (voltage constraint), then E(z) and the electron flux;
-3. neutrals: upwind advection, ionization sink treated implicitly (positive);
-4. ions: Rusanov (local Lax-Friedrichs) fluxes, Bohm-speed outflow into the
-   anode, supersonic outflow at the cathode plane, ionization source equal to
-   the neutral sink (exact discrete mass conservation);
-5. electron energy: backward Euler in T_e with upwind convection, conduction,
-   Ohmic heating and linearised losses (one tridiagonal solve).
+1. rates, collision frequencies, the secondary-electron yield of the walls and
+   the cross-field mobility from the state;
+2. the discharge current from the integral of Ohm's law between the anode
+   sheath edge (potential V_d + anode fall) and the cathode plane (voltage
+   constraint), then E(z);
+3. ion face fluxes (Rusanov with MUSCL reconstruction), a Bohm sink with the
+   pre-sheath density factor at the anode, supersonic outflow at the cathode
+   plane;
+4. neutrals: two upwind populations (anode gas moving downstream, ingested
+   background gas moving upstream), ionization sink implicit, wall
+   recombination source equal to the ion wall sink (exact discrete mass
+   conservation);
+5. ions: ionization source, wall sink, electric force, charge-exchange and
+   elastic ion-neutral momentum transfer (implicit in the ion momentum);
+6. electron energy: backward Euler in T_e with upwind convection, conduction,
+   Ohmic heating and linearised losses (one tridiagonal solve);
+7. time integrals for the averages and the balance diagnostics.
+
+The ion and neutral updates are advanced with the two-stage strong-stability-
+preserving Runge-Kutta method (SSP-RK2, Shu and Osher 1988) when ``rk2`` is
+set; the electric field and the transport coefficients are frozen over the
+step, so the second stage re-evaluates fluxes and sources only.
 """
 
 from __future__ import annotations
@@ -32,6 +45,7 @@ _FM = {"nsz", "arcp", "contract", "afn", "reassoc"}
 
 _E = 1.602176634e-19  # elementary charge [C] (CODATA 2018, exact)
 _ME = 9.1093837015e-31  # electron mass [kg] (CODATA 2018)
+_PI = math.pi
 
 # Status codes returned by march().
 OK = 0
@@ -42,28 +56,25 @@ NONFINITE_ION_FLUX = 4
 TIME_STEP_COLLAPSE = 5
 VELOCITY_RUNAWAY = 6
 
-
-@njit(cache=True, inline="always", fastmath=_FM)
-def _interp(table, t0, inv_dt, x):
-    """Linear interpolation on a uniform table starting at t0 with spacing 1/inv_dt."""
-    s = (x - t0) * inv_dt
-    if s <= 0.0:
-        return table[0]
-    n = table.shape[0]
-    if s >= n - 1:
-        return table[n - 1]
-    k = int(s)
-    f = s - k
-    return table[k] * (1.0 - f) + table[k + 1] * f
+# Field indices of the per-cell accumulators acc[chunk, field, cell].
+A_NE, A_GI, A_NN, A_TE, A_PHI, A_EF, A_NU, A_FN, A_SRC, A_SEE, A_NI_END = range(11)
+N_CELL_FIELDS = 11
+# Indices of the global accumulators acc_g[chunk, k].
+(G_CUR, G_CUR2, G_ION_OUT, G_MOM_OUT, G_NEU_OUT, G_IN, G_T, G_ION_ANODE, G_ENERGY_OUT,
+ G_IONIZATION, G_WALL, G_INGEST, G_SHEATH, G_CUR_MIN, G_CUR_MAX) = range(15)  # fmt: skip
+N_GLOBALS = 15
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _minmod(a, b):
-    if a * b <= 0.0:
+def _limited_slope(a, b):
+    """Van Leer's harmonic slope limiter 2ab / (a + b), 0 at extrema (van Leer 1974).
+
+    Clips less than minmod, so smooth extrema keep more of the second-order accuracy.
+    """
+    ab = a * b
+    if ab <= 0.0:
         return 0.0
-    if abs(a) < abs(b):
-        return a
-    return b
+    return 2.0 * ab / (a + b)
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
@@ -83,19 +94,101 @@ def nu_ei_nrl(n_m3, te_eV):
     return 2.91e-12 * n_m3 * coulomb_log_nrl(n_m3, te_eV) / (te_eV * math.sqrt(te_eV))
 
 
+@njit(cache=True, inline="always", fastmath=_FM)
+def _heavy_rhs(i, nn, nb, ni, gi, ne, ef, kiz, nu_w, k_in, u_n, e_over_m, fn, fg, fnn, fnb,
+               inv_dz):  # fmt: skip
+    """Right-hand sides (dn_n, dn_b, dn_i, dg_i)/dt of cell i, explicit part."""
+    rw = nu_w[i] * ni[i]  # ions lost to the walls = neutrals re-emitted there
+    rate = ne[i] * kiz[i]
+    dnn = -(fnn[i + 1] - fnn[i]) * inv_dz + rw - rate * nn[i]
+    dnb = -(fnb[i + 1] - fnb[i]) * inv_dz - rate * nb[i]
+    siz = rate * (nn[i] + nb[i])
+    dni = -(fn[i + 1] - fn[i]) * inv_dz + siz - rw
+    dgi = -(fg[i + 1] - fg[i]) * inv_dz + e_over_m * ne[i] * ef[i] + siz * u_n
+    dgi += -nu_w[i] * gi[i] - k_in[i] * (gi[i] - ni[i] * u_n)
+    return dnn, dnb, dni, dgi
+
+
+@njit(cache=True, inline="always", fastmath=_FM)
+def _ion_fluxes(ni, gi, cs, muscl, fn, fg, uw, sn, su, presheath):
+    """Rusanov face fluxes of ion number and momentum/M (fills fn, fg; uw, sn, su work)."""
+    n = ni.shape[0]
+    for i in range(n):
+        uw[i] = gi[i] / ni[i]
+    sn[0] = 0.0
+    su[0] = 0.0
+    sn[n - 1] = 0.0
+    su[n - 1] = 0.0
+    for i in range(1, n - 1):
+        if muscl:
+            sn[i] = 0.5 * _limited_slope(ni[i] - ni[i - 1], ni[i + 1] - ni[i])
+            su[i] = 0.5 * _limited_slope(uw[i] - uw[i - 1], uw[i + 1] - uw[i])
+        else:
+            sn[i] = 0.0
+            su[i] = 0.0
+    u0 = uw[0]
+    if u0 > -cs[0]:  # subsonic towards the anode: Bohm flux at the pre-sheath density
+        fn[0] = -presheath * ni[0] * cs[0]
+        fg[0] = fn[0] * (-cs[0])
+    else:
+        fn[0] = gi[0]
+        fg[0] = gi[0] * u0
+    for f in range(1, n):
+        l = f - 1
+        nl = ni[l] + sn[l]
+        ul = uw[l] + su[l]
+        nr = ni[f] - sn[f]
+        ur = uw[f] - su[f]
+        a = max(abs(ul) + cs[l], abs(ur) + cs[f])
+        gl = nl * ul
+        gr = nr * ur
+        fn[f] = 0.5 * (gl + gr) - 0.5 * a * (nr - nl)
+        fg[f] = 0.5 * (gl * ul + gr * ur) - 0.5 * a * (gr - gl)
+    if gi[n - 1] > 0.0:
+        fn[n] = gi[n - 1]
+        fg[n] = gi[n - 1] * uw[n - 1]
+    else:  # never let the cathode plane feed ions in
+        fn[n] = 0.0
+        fg[n] = 0.0
+
+
+@njit(cache=True, inline="always", fastmath=_FM)
+def _neutral_fluxes(nn, nb, u_n, u_b, fnn, fnb, muscl):
+    """Upwind neutral face fluxes with van Leer-limited linear reconstruction.
+
+    fnn[1..n] (anode gas, moving downstream) and fnb[0..n-1] (ingested gas, moving
+    upstream); the boundary faces fnn[0] and fnb[n] are set by the caller.
+    """
+    n = nn.shape[0]
+    for f in range(1, n + 1):
+        l = f - 1
+        v = nn[l]
+        if muscl and 1 <= l <= n - 2:
+            v += 0.5 * _limited_slope(nn[l] - nn[l - 1], nn[l + 1] - nn[l])
+        fnn[f] = u_n * v
+    for f in range(n):
+        v = nb[f]
+        if muscl and 1 <= f <= n - 2:
+            v -= 0.5 * _limited_slope(nb[f] - nb[f - 1], nb[f + 1] - nb[f])
+        fnb[f] = -u_b * v
+
+
 @njit(cache=True, fastmath=_FM, nogil=True)
 def march(
-    nn, ni, gi, te,  # state (modified in place) [m^-3, m^-3, m^-2 s^-1, eV]
-    dz, area, ion_mass, u_n, gamma_in, v_d, te_cath,
-    omega_ce, nu_anom, wall_mask, wall_nu_factor, wall_loss_per_te,
+    nn, nb, ni, gi, te, sheath,  # state (modified in place) [m^-3 x3, m^-2 s^-1, eV, V]
+    dz, area, ion_mass, u_n, u_b, gamma_in, gamma_bg, v_d, te_cath,
+    omega_ce, nu_anom, wall_frac, wall_rate_factor,
+    w_inv_tab, w_pow_tab, w_slope_tab,
     rate_t0, rate_inv_dt, k_iz_tab, k_loss_tab, k_en_tab,
-    n_floor, te_floor, te_ceiling, cfl, dt_max, muscl, u_guard,
+    cex_a, cex_b, k_elastic, v_n_thermal,
+    n_floor, te_floor, te_ceiling, cfl, dt_max, muscl, rk2, u_guard,
+    fall_min, fall_max, fall_time_s,
     t_start, t_end, sample_dt, chunk_dt,
-    acc,  # (n_chunks, n_fields, N) time-weighted sums per chunk, modified in place
-    acc_g,  # (n_chunks, n_global) time-weighted sums of global quantities per chunk
+    acc,  # (n_chunks, N_CELL_FIELDS, N) time-weighted sums per chunk, modified in place
+    acc_g,  # (n_chunks, N_GLOBALS) time-weighted sums of global quantities per chunk
     samples,  # (n_samples,) discharge current samples [A] from t_start on
     hit_kinds,  # (3,) int64: density-floor, T_e-floor and T_e-ceiling hits, incremented
-):
+):  # fmt: skip
     """Advance the state from t_start to t_end; accumulate time integrals.
 
     Returns
@@ -105,6 +198,7 @@ def march(
     n = ni.shape[0]
     e_over_m = _E / ion_mass
     mu_pref = _E / _ME  # e/m_e; mobility = mu_pref / nu / (1 + Omega^2) [m^2/(V s)]
+    ve_pref = math.sqrt(8.0 * _E / (_PI * _ME))  # mean electron speed per sqrt(T_e[eV])
 
     ne = np.empty(n)
     ui = np.empty(n)
@@ -112,17 +206,22 @@ def march(
     inv_mu = np.empty(n)
     inv_ne = np.empty(n)
     lnl = np.empty(n)
-    sqrt_e_over_m = math.sqrt(e_over_m)
     n_tab = k_iz_tab.shape[0]
     kiz = np.empty(n)
     kloss = np.empty(n)
     nu_tot = np.empty(n)
+    nu_w = np.empty(n)  # ion wall-loss frequency [1/s]
+    wloss = np.empty(n)  # electron wall energy loss per electron per second / T_e [1/s]
+    wslope = np.empty(n)  # d(wall power per electron)/dT_e [1/s]
+    see = np.empty(n)
+    k_in = np.empty(n)  # ion-neutral momentum-transfer frequency [1/s]
     p = np.empty(n)
     dp = np.empty(n)
     ef = np.empty(n)
     fn = np.empty(n + 1)  # ion number flux at faces
     fg = np.empty(n + 1)  # ion momentum flux / M at faces
-    fnn = np.empty(n + 1)  # neutral flux at faces
+    fnn = np.empty(n + 1)  # anode-gas neutral flux at faces
+    fnb = np.empty(n + 1)  # ingested background-gas flux at faces (negative)
     kap = np.empty(n)
     heat = np.empty(n)
     lossc = np.empty(n)
@@ -131,11 +230,17 @@ def march(
     a_up = np.empty(n)
     rhs = np.empty(n)
     cprime = np.empty(n)
-    nn_new = np.empty(n)
-    ne_new = np.empty(n)
+    nn1 = np.empty(n)
+    nb1 = np.empty(n)
+    ni1 = np.empty(n)
+    gi1 = np.empty(n)
+    src0 = np.empty(n)
     phi = np.empty(n + 1)
+    fn0_save = np.empty(n + 1)
+    uw = np.empty(n)
     sn = np.empty(n)
     su = np.empty(n)
+    inv_dz = 1.0 / dz
 
     t = t_start
     steps = 0
@@ -144,6 +249,8 @@ def march(
     next_sample = t_start
     max_samples = samples.shape[0]
     n_chunks = acc.shape[0]
+    for i in range(n):
+        lnl[i] = coulomb_log_nrl(max(ni[i], n_floor), te[i])
 
     while t < t_end:
         # ---- 1. local coefficients --------------------------------------
@@ -158,7 +265,8 @@ def march(
             inv_ne[i] = 1.0 / ni[i]
             ui[i] = gi[i] * inv_ne[i]
             tt = te[i]
-            cs[i] = math.sqrt(e_over_m * tt)
+            sq_t = math.sqrt(tt)
+            cs[i] = math.sqrt(e_over_m) * sq_t
             a = abs(ui[i]) + cs[i]
             if a > amax:
                 amax = a
@@ -175,14 +283,38 @@ def march(
             ken = k_en_tab[kt] + ft * (k_en_tab[kt + 1] - k_en_tab[kt])
             if steps % 8 == 0:  # the Coulomb logarithm varies slowly: refresh every 8 steps
                 lnl[i] = coulomb_log_nrl(ne[i], tt)
-            nu_ei = 2.91e-12 * ne[i] * lnl[i] / (tt * cs[i]) * sqrt_e_over_m
-            nu = nn[i] * ken + nu_ei + wall_mask[i] * wall_nu_factor * cs[i]
-            nu += nu_anom[i]
+            nu_ei = 2.91e-12 * ne[i] * lnl[i] / (tt * sq_t)
+            # walls (tabulated in T_e, see model._wall_tables): Bohm ion flux at the
+            # pre-sheath density on both walls, primary electrons nu_w / (1 - sigma), wall
+            # power per electron and its slope in T_e for the Newton linearisation
+            cw = wall_frac[i] * wall_rate_factor
+            nuw = cw * cs[i]
+            nu_w[i] = nuw
+            inv1m = w_inv_tab[kt] + ft * (w_inv_tab[kt + 1] - w_inv_tab[kt])
+            wpow = w_pow_tab[kt] + ft * (w_pow_tab[kt + 1] - w_pow_tab[kt])
+            wsl = w_slope_tab[kt] + ft * (w_slope_tab[kt + 1] - w_slope_tab[kt])
+            see[i] = 1.0 - 1.0 / inv1m
+            wloss[i] = cw * wpow / tt  # per electron per second / T_e
+            wslope[i] = cw * wsl if wsl > 0.0 else 0.0
+            nu = (nn[i] + nb[i]) * ken + nu_ei + nuw * inv1m + nu_anom[i]
             nu_tot[i] = nu
             om = omega_ce[i]
             # mu = (e/m) / nu / (1 + (om/nu)^2) = (e/m) nu / (nu^2 + om^2)
             inv_mu[i] = (nu * nu + om * om) / (mu_pref * nu)
             p[i] = ne[i] * tt
+            if steps % 4 == 0:  # ion-neutral drag varies slowly: refresh every 4 steps
+                # charge exchange (sigma = (a - b log10 E) m^2, E the ion energy in the
+                # neutral frame [eV]) at the relative speed with the neutral thermal
+                # spread, plus the velocity-independent elastic (polarization) rate
+                du = ui[i] - u_n
+                g = math.sqrt(du * du + v_n_thermal * v_n_thermal)
+                e_rel = 0.5 * du * du / e_over_m
+                if e_rel < 0.1:
+                    e_rel = 0.1
+                sig_cx = cex_a - cex_b * math.log10(e_rel)
+                if sig_cx < 0.0:
+                    sig_cx = 0.0
+                k_in[i] = (nn[i] + nb[i]) * (sig_cx * g + k_elastic)
         if amax > u_guard:
             k_bad = 0
             for i in range(n):
@@ -191,10 +323,10 @@ def march(
             return VELOCITY_RUNAWAY, steps, t, floor_hits, n_samp, k_bad
 
         # ---- 2. Ohm's law and the voltage constraint --------------------
-        dp[0] = (p[1] - p[0]) / dz
-        dp[n - 1] = (p[n - 1] - p[n - 2]) / dz
+        dp[0] = (p[1] - p[0]) * inv_dz
+        dp[n - 1] = (p[n - 1] - p[n - 2]) * inv_dz
         for i in range(1, n - 1):
-            dp[i] = (p[i + 1] - p[i - 1]) / (2.0 * dz)
+            dp[i] = (p[i + 1] - p[i - 1]) * (0.5 * inv_dz)
         s1 = 0.0
         s2 = 0.0
         s3 = 0.0
@@ -202,20 +334,20 @@ def march(
             s1 += inv_ne[i] * inv_mu[i]
             s2 += ui[i] * inv_mu[i]
             s3 += dp[i] * inv_ne[i]
-        jflux = (v_d / dz + s2 + s3) / s1  # j / e  [m^-2 s^-1]
+        v_edge = v_d + sheath[0]  # plasma potential at the anode sheath edge
+        jflux = (v_edge * inv_dz + s2 + s3) / s1  # j / e  [m^-2 s^-1]
         if not math.isfinite(jflux):
             return NONFINITE_CURRENT, steps, t, floor_hits, n_samp, 0
+        emax = 0.0
         for i in range(n):
             ef[i] = (jflux * inv_ne[i] - ui[i]) * inv_mu[i] - dp[i] * inv_ne[i]
-        phi[0] = v_d
+            if abs(ef[i]) > emax:
+                emax = abs(ef[i])
+        phi[0] = v_edge
         for i in range(n):
             phi[i + 1] = phi[i] - ef[i] * dz
         # time step: Courant number on |u_i| + c_s, and on the ion acceleration
         # (an ion starting at rest must not cross more than a cell per step)
-        emax = 0.0
-        for i in range(n):
-            if abs(ef[i]) > emax:
-                emax = abs(ef[i])
         dt = cfl * dz / amax
         if emax > 0.0:
             dt_acc = cfl * math.sqrt(dz / (e_over_m * emax))
@@ -223,69 +355,51 @@ def march(
                 dt = dt_acc
         if dt > dt_max:
             dt = dt_max
-        if t + dt > t_end:
-            dt = t_end - t
         if dt <= 1e-13:
             return TIME_STEP_COLLAPSE, steps, t, floor_hits, n_samp, 0
+        if t + dt > t_end:
+            dt = t_end - t
+            if dt <= 1e-16 * t_end:  # rounding left a sliver of the interval: done
+                t = t_end
+                break
 
-        # ---- 3. ion face fluxes (Rusanov) --------------------------------
-        ub = ui[0]
-        if ub > -cs[0]:
-            ub = -cs[0]
-        fn[0] = ne[0] * ub
-        fg[0] = ne[0] * ub * ub
-        # MUSCL reconstruction of n and u (minmod slopes), zero slope in end cells
-        sn[0] = 0.0
-        su[0] = 0.0
-        sn[n - 1] = 0.0
-        su[n - 1] = 0.0
-        if muscl:
-            for i in range(1, n - 1):
-                sn[i] = _minmod(ni[i] - ni[i - 1], ni[i + 1] - ni[i])
-                su[i] = _minmod(ui[i] - ui[i - 1], ui[i + 1] - ui[i])
-        else:
-            for i in range(1, n - 1):
-                sn[i] = 0.0
-                su[i] = 0.0
-        for f in range(1, n):
-            l = f - 1
-            r = f
-            nl = ni[l] + 0.5 * sn[l]
-            ul = ui[l] + 0.5 * su[l]
-            nr = ni[r] - 0.5 * sn[r]
-            ur = ui[r] - 0.5 * su[r]
-            a = max(abs(ul) + cs[l], abs(ur) + cs[r])
-            gl = nl * ul
-            gr = nr * ur
-            fn[f] = 0.5 * (gl + gr) - 0.5 * a * (nr - nl)
-            fg[f] = 0.5 * (gl * ul + gr * ur) - 0.5 * a * (gr - gl)
-        fn[n] = gi[n - 1]
-        fg[n] = gi[n - 1] * ui[n - 1]
-        if fn[n] < 0.0:  # never let the cathode plane feed ions in
-            fn[n] = 0.0
-            fg[n] = 0.0
-
-        # ---- 4. neutrals (upwind, implicit ionization sink) --------------
-        recomb = -fn[0] if fn[0] < 0.0 else 0.0
-        fnn[0] = gamma_in + recomb
-        for f in range(1, n + 1):
-            fnn[f] = u_n * nn[f - 1]
-        lam = dt / dz
+        # ---- 3.-5. heavy particles (SSP-RK2 or forward Euler) -----------
+        _ion_fluxes(ni, gi, cs, muscl, fn, fg, uw, sn, su, 0.6065306597126334)
+        for f in range(n + 1):
+            fn0_save[f] = fn[f]
+        fnb[n] = -gamma_bg
+        _neutral_fluxes(nn, nb, u_n, u_b, fnn, fnb, muscl)
+        # anode: injected flow + ions recombined on the anode + ingested gas re-emitted
+        fnn[0] = gamma_in - fn[0] - fnb[0]
         for i in range(n):
-            num = nn[i] - lam * (fnn[i + 1] - fnn[i])
-            if num < 0.0:
-                num = 0.0
-            nn_new[i] = num / (1.0 + dt * ne[i] * kiz[i])
-
-        # ---- 5. ions ------------------------------------------------------
+            src0[i] = ne[i] * kiz[i] * (nn[i] + nb[i]) - nu_w[i] * ni[i]
         for i in range(n):
-            siz = ne[i] * kiz[i] * nn_new[i]
-            ni_new = ni[i] - lam * (fn[i + 1] - fn[i]) + dt * siz
-            gi_new = gi[i] - lam * (fg[i + 1] - fg[i]) + dt * (
-                e_over_m * ne[i] * ef[i] + siz * u_n
-            )
-            ne_new[i] = ni_new
-            gi[i] = gi_new
+            dnn, dnb, dni, dgi = _heavy_rhs(i, nn, nb, ni, gi, ne, ef, kiz, nu_w, k_in, u_n,
+                                            e_over_m, fn, fg, fnn, fnb, inv_dz)  # fmt: skip
+            nn1[i] = max(nn[i] + dt * dnn, 0.0)
+            nb1[i] = max(nb[i] + dt * dnb, 0.0)
+            ni1[i] = ni[i] + dt * dni
+            gi1[i] = gi[i] + dt * dgi
+        if rk2:
+            for i in range(n):
+                if ni1[i] < n_floor:
+                    ni1[i] = n_floor
+                    gi1[i] = 0.0
+            # second stage with the stage-1 state; E, rates and T_e frozen over the step
+            _ion_fluxes(ni1, gi1, cs, muscl, fn, fg, uw, sn, su, 0.6065306597126334)
+            _neutral_fluxes(nn1, nb1, u_n, u_b, fnn, fnb, muscl)
+            fnn[0] = gamma_in - fn[0] - fnb[0]
+            for i in range(n):
+                dnn, dnb, dni, dgi = _heavy_rhs(i, nn1, nb1, ni1, gi1, ne, ef, kiz, nu_w,
+                                                k_in, u_n, e_over_m, fn, fg, fnn, fnb,
+                                                inv_dz)  # fmt: skip
+                nn1[i] = max(0.5 * (nn[i] + nn1[i] + dt * dnn), 0.0)
+                nb1[i] = max(0.5 * (nb[i] + nb1[i] + dt * dnb), 0.0)
+                ni1[i] = 0.5 * (ni[i] + ni1[i] + dt * dni)
+                gi1[i] = 0.5 * (gi[i] + gi1[i] + dt * dgi)
+            # time-averaged face fluxes of the step (the two stages' mean)
+            for f in range(n + 1):
+                fn0_save[f] = 0.5 * (fn0_save[f] + fn[f])
         # ---- 6. electron energy (implicit in T_e) ------------------------
         for i in range(n):
             kap[i] = 2.5 * ne[i] * te[i] / inv_mu[i]  # cross-field conductivity [1/(m s)]
@@ -293,15 +407,16 @@ def march(
             h = -ge * ef[i]  # Ohmic heating j_e . E [eV m^-3 s^-1]
             inv_t = 1.0 / te[i]
             # losses: inelastic (ionization + excitation) and wall (sheath) losses
-            lw = wall_mask[i] * wall_nu_factor * cs[i] * wall_loss_per_te
-            lossc[i] = ne[i] * nn[i] * kloss[i] * inv_t + ne[i] * lw
+            # wall power W(T) linearised about the old T: W0 + W'(T - T0)
+            lossc[i] = ne[i] * (nn[i] + nb[i]) * kloss[i] * inv_t + ne[i] * wslope[i]
+            h += ne[i] * (wslope[i] - wloss[i]) * te[i]
             if h < 0.0:
                 lossc[i] += -h * inv_t
                 h = 0.0
             heat[i] = h
         nnew_floor = 0
         for i in range(n):
-            nen = ne_new[i]
+            nen = ni1[i]
             if nen < n_floor:
                 nen = n_floor
                 nnew_floor += 1
@@ -309,27 +424,35 @@ def march(
             a_lo[i] = 0.0
             a_up[i] = 0.0
             rhs[i] = 1.5 * ne[i] * te[i] / dt + heat[i]
-        inv_dz = 1.0 / dz
         # interior faces f between l = f-1 and r = f
         for f in range(1, n):
             l = f - 1
             r = f
-            gef = fn[f] - jflux  # electron flux at the face
+            gef = fn0_save[f] - jflux  # electron flux at the face
             kf = 0.5 * (kap[l] + kap[r]) * inv_dz
-            # convection 2.5 gef T_upwind, conduction -kf (T_r - T_l)
-            cp = 2.5 * max(gef, 0.0)
-            cm = 2.5 * min(gef, 0.0)
-            # flux Q_f = cp*T_l + cm*T_r - kf*(T_r - T_l); leaves l, enters r
+            # convection 2.5 gef T_face, conduction -kf (T_r - T_l); T_face central
+            # (second order) where the cell Peclet number 2.5 |gef| / kf <= 2, upwind
+            # beyond (hybrid scheme, Spalding 1972: keeps the matrix an M-matrix)
+            conv = 2.5 * gef
+            if abs(conv) <= 2.0 * kf:
+                cp = 0.5 * conv
+                cm = 0.5 * conv
+            else:
+                cp = max(conv, 0.0)
+                cm = min(conv, 0.0)
             a_di[l] += (cp + kf) * inv_dz
             a_up[l] += (cm - kf) * inv_dz
             a_di[r] += (-cm + kf) * inv_dz
             a_lo[r] += (-cp - kf) * inv_dz
-        # anode face: zero conductive flux, electron enthalpy convected (upwind = cell 0)
-        ge0 = fn[0] - jflux
-        # Q_0 = 2.5 ge0 T_0 (positive into the domain when ge0 > 0); enters cell 0
-        a_di[0] += -2.5 * ge0 * inv_dz if ge0 < 0.0 else 0.0
+        # anode face: zero conductive flux; electrons leave through the sheath with
+        # 2 T_e + the sheath fall each (or the enthalpy 5/2 T_e if the fall is negative)
+        ge0 = fn0_save[0] - jflux
+        per = 2.5
+        if sheath[0] > 0.0:
+            per = 2.0 + sheath[0] / te[0]
+        a_di[0] += -per * ge0 * inv_dz if ge0 < 0.0 else 0.0
         # cathode face: Dirichlet T = te_cath half a cell away
-        gen = fn[n] - jflux
+        gen = fn0_save[n] - jflux
         kf = 2.0 * kap[n - 1] * inv_dz
         a_di[n - 1] += kf * inv_dz
         rhs[n - 1] += kf * inv_dz * te_cath
@@ -359,8 +482,10 @@ def march(
                 te[i] = te_ceiling
                 floor_hits += 1
                 hit_kinds[2] += 1
-            nn[i] = nn_new[i]
-            ni[i] = ne_new[i]
+            nn[i] = nn1[i]
+            nb[i] = nb1[i]
+            ni[i] = ni1[i]
+            gi[i] = gi1[i]
             if not math.isfinite(ni[i]):
                 return NONFINITE_DENSITY, steps, t, floor_hits, n_samp, i
             if not math.isfinite(gi[i]):
@@ -368,33 +493,63 @@ def march(
         floor_hits += nnew_floor
         hit_kinds[0] += nnew_floor
 
-        # ---- 7. time integrals (state at the start of the step, weight dt) --
+        # ---- anode fall: sheath that passes the electron current the plasma needs ----
+        # electron flux into the anode; random (thermal) flux n v_e / 4 at the sheath edge
+        g_req = jflux - fn0_save[0]
+        t0a = te[0]
+        g_th = 0.25 * ne[0] * ve_pref * math.sqrt(t0a)
+        target = fall_min * t0a
+        if g_req > 0.0:
+            target = t0a * math.log(g_th / g_req)
+        if target < fall_min * t0a:
+            target = fall_min * t0a
+        if target > fall_max * t0a:
+            target = fall_max * t0a
+        w = dt / (dt + fall_time_s)
+        sheath[0] += w * (target - sheath[0])
+
+        # ---- 7. time integrals (weight dt) --------------------------------
         c = int((t - t_start) / chunk_dt)
         if c >= n_chunks:
             c = n_chunks - 1
         a2 = acc[c]
+        for i in range(n):  # ion density at the end of the chunk (overwritten each step)
+            a2[A_NI_END, i] = ni[i]
+        ion_total = 0.0
+        wall_total = 0.0
         for i in range(n):
-            a2[0, i] += dt * ne[i]
-            a2[1, i] += dt * ne[i] * ui[i]
-            a2[2, i] += dt * nn[i]
-            a2[3, i] += dt * te[i]
-            a2[4, i] += dt * 0.5 * (phi[i] + phi[i + 1])
-            a2[5, i] += dt * ef[i]
-            a2[6, i] += dt * (ne[i] * ui[i] - jflux)  # electron flux from the current
-            # electron flux from Ohm's law evaluated independently of the current
-            a2[7, i] += dt * (-(ne[i] * ef[i] + dp[i]) / inv_mu[i])
-            a2[8, i] += dt * nu_tot[i]
-            a2[9, i] += dt * ne[i] * ui[i] * ui[i]
+            a2[A_NE, i] += dt * ne[i]
+            a2[A_GI, i] += dt * gi[i]
+            a2[A_NN, i] += dt * (nn[i] + nb[i])
+            a2[A_TE, i] += dt * te[i]
+            a2[A_PHI, i] += dt * 0.5 * (phi[i] + phi[i + 1])
+            a2[A_EF, i] += dt * ef[i]
+            a2[A_NU, i] += dt * nu_tot[i]
+            a2[A_FN, i] += dt * fn0_save[i]  # ion flux at the face on the anode side
+            a2[A_SRC, i] += dt * src0[i]  # net ion source (ionization - wall loss)
+            a2[A_SEE, i] += dt * see[i]
+            ion_total += ne[i] * kiz[i] * (nn[i] + nb[i])
+            wall_total += nu_w[i] * ne[i]
         cur = _E * area * jflux
         ag = acc_g[c]
-        ag[0] += dt * cur
-        ag[1] += dt * cur * cur
-        ag[2] += dt * fn[n]  # ion flux through the cathode plane
-        ag[3] += dt * fg[n]  # ion momentum flux / M through the cathode plane
-        ag[4] += dt * fnn[n]  # neutral flux through the cathode plane
-        ag[5] += dt * (fnn[0] + fn[0])  # net heavy-particle flux in at the anode
-        ag[6] += dt
-        ag[7] += dt * fn[0]  # ion flux at the anode (negative: into the anode)
+        ag[G_CUR] += dt * cur
+        ag[G_CUR2] += dt * cur * cur
+        ag[G_ION_OUT] += dt * fn0_save[n]  # ion flux through the cathode plane
+        un = gi[n - 1] * inv_ne[n - 1] if gi[n - 1] > 0.0 else 0.0
+        ag[G_MOM_OUT] += dt * fn0_save[n] * un  # ion momentum flux / M out
+        ag[G_ENERGY_OUT] += dt * fn0_save[n] * un * un  # ion energy flux * 2 / M out
+        ag[G_NEU_OUT] += dt * fnn[n]  # neutral flux through the cathode plane
+        ag[G_IN] += dt * (gamma_in + gamma_bg)  # heavy-particle flux in
+        ag[G_T] += dt
+        ag[G_ION_ANODE] += dt * fn0_save[0]  # ion flux at the anode (negative: into it)
+        ag[G_IONIZATION] += dt * ion_total * dz
+        ag[G_WALL] += dt * wall_total * dz
+        ag[G_INGEST] += dt * gamma_bg
+        ag[G_SHEATH] += dt * sheath[0]
+        if cur < ag[G_CUR_MIN] or ag[G_CUR_MIN] == 0.0:
+            ag[G_CUR_MIN] = cur
+        if cur > ag[G_CUR_MAX]:
+            ag[G_CUR_MAX] = cur
         while next_sample <= t + dt and n_samp < max_samples:
             samples[n_samp] = cur
             n_samp += 1

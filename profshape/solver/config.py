@@ -15,7 +15,8 @@ Tables
     Missing keys take the demo device's values.
 ``[operating_point]``
     ``label``, ``discharge_voltage_V``, ``anode_mass_flow_kg_s``,
-    ``propellant``, ``magnetic_field_scale``; missing keys take the first demo
+    ``propellant``, ``magnetic_field_scale``, ``background_pressure_Pa``,
+    ``background_temperature_K``; missing keys take the first demo
     point's values.
 ``[profile]``
     ``family`` (a shape family name, see :func:`profshape.shapes.get_family`),
@@ -65,6 +66,8 @@ _POINT_KEYS = (
     "anode_mass_flow_kg_s",
     "propellant",
     "magnetic_field_scale",
+    "background_pressure_Pa",
+    "background_temperature_K",
 )
 
 #: Coefficients of the default profile (a smooth step, Bohm-like coefficient):
@@ -194,6 +197,10 @@ def settings_from_mapping(mapping: Mapping[str, Any], where: str = "solver") -> 
     names = tuple(f.name for f in dataclasses.fields(SolverSettings))
     _check_keys(mapping, names, where)
     for key, value in mapping.items():
+        if key == "wall_material":
+            if not isinstance(value, str):
+                raise ConfigError(f"{where}.{key} must be a string; got {value!r}.")
+            continue
         _number(value, f"{where}.{key}")
     try:
         return SolverSettings(**dict(mapping))

@@ -23,7 +23,8 @@ CELL_COLUMNS: dict[str, str] = {
     "magnetic_field_T": "radial magnetic field [T] (scaled for the operating point)",
     "collision_frequency_per_s": "total electron momentum-transfer frequency [1/s]",
     "ion_current_A": "ion current e A <n u_i> [A]",
-    "electron_current_A": "electron current -e A <n u_e> from Ohm's law [A]",
+    "electron_current_A": "electron current I_d - I_ion (quasi-neutral current continuity) [A]",
+    "wall_secondary_yield": "effective secondary-electron yield of the channel walls [-]",
 }
 
 #: Global outputs and their units.
@@ -36,21 +37,37 @@ GLOBAL_DESCRIPTIONS: dict[str, str] = {
     "mass_utilization": "ion mass flow through the cathode plane / anode mass flow [-]",
     "current_utilization": "ion (beam) current at the cathode plane / discharge current [-]",
     "voltage_utilization": "exit ion energy / discharge voltage [-]",
-    "exit_ion_energy_eV": "mean ion kinetic energy at the cathode plane M <n u^3>/<n u>/2e [eV]",
+    "exit_ion_energy_eV": "flux-weighted mean ion kinetic energy at the cathode plane "
+    "M <n u^3>/<n u>/2e [eV]",
+    "effective_exit_velocity_m_s": "ion momentum flux / ion number flux at the cathode plane [m/s]",
+    "max_ion_velocity_m_s": "largest time-averaged ion velocity over the cells [m/s]",
+    "ion_energy_bound_velocity_m_s": "energy bound sqrt(2 e max(V_d + anode fall, phi_max) / M) "
+    "[m/s]",
+    "anode_ion_current_A": "ion current into the anode (Bohm sink) [A]",
+    "wall_ion_current_A": "ion current to the channel walls (recombined into neutrals) [A]",
+    "anode_fall_V": "plasma potential at the anode sheath edge minus V_d (> 0: electron-"
+    "repelling sheath) [V]",
+    "max_potential_V": "largest time-averaged plasma potential [V]",
+    "ingested_mass_flow_kg_s": "background gas ingested through the cathode plane [kg/s]",
+    "oscillation_peak_to_peak_A": "peak-to-peak discharge current over the averaging range [A]",
+    "oscillation_periods": "oscillation periods in the averaging range (0 if quiescent) [-]",
+    "ion_balance_error": "(ions out through anode, cathode plane and walls) / ions created - 1, "
+    "from boundary fluxes and volume sources accumulated separately [-]",
+    "continuity_residual": "max over cells of the time-averaged ion continuity residual "
+    "|d<Gamma_i>/dz + d<n>/dt - <S>| times the domain length / beam flux [-]",
     "exit_ion_velocity_m_s": "density-weighted ion velocity in the last cell [m/s]",
     "channel_exit_ion_velocity_m_s": "ion velocity at the channel exit plane [m/s]",
     "beam_current_A": "ion current through the cathode plane [A]",
     "peak_electron_temperature_eV": "maximum of the time-averaged electron temperature [eV]",
-    "oscillation_amplitude_A": "standard deviation of the discharge current [A]",
+    "oscillation_amplitude_A": "rms (standard deviation) of the discharge current [A]",
     "oscillation_relative_amplitude": "oscillation_amplitude_A / discharge_current_A [-]",
     "oscillation_frequency_Hz": "dominant frequency of the current (0 if relative amplitude < 1 %) [Hz]",
-    "converged": "whether the convergence test passed",
-    "status": '"ok", "not_converged" or "failed"',
+    "converged": 'whether the convergence test passed (status "ok" or "oscillating")',
+    "status": '"ok", "oscillating", "not_converged" or "failed"',
     "reason": "why the run stopped",
     "mass_balance_error": "(outlet ion + neutral flow) / anode flow - 1 over the window [-]",
     "statistical_uncertainty": "relative standard error of the averaged current / exit velocity "
     "from the cycle-to-cycle scatter (0 for a non-oscillating discharge) [-]",
-    "current_balance_error": "max over z of |I_ion + I_electron - I_d| / I_d [-]",
     "floor_fraction": "fraction of cell-steps that hit a floor or ceiling [-]",
     "simulated_time_s": "simulated time [s]",
     "averaging_time_s": "length of the averaging window [s]",
@@ -68,8 +85,12 @@ class SolverResult:
 
     Attributes
     ----------
-    status : {"ok", "not_converged", "failed"}
-        ``"ok"``: converged and finite. ``"not_converged"``: finite averages
+    status : {"ok", "oscillating", "not_converged", "failed"}
+        ``"ok"``: converged, quiescent (current rms below 1 %) and finite.
+        ``"oscillating"``: converged in the mean over at least
+        ``SolverSettings.min_oscillation_periods`` periods; the rms,
+        peak-to-peak amplitude and dominant frequency are in :attr:`globals`.
+        ``"not_converged"``: finite averages
         but the convergence test failed (see :attr:`reason`). ``"failed"``:
         the march diverged; :attr:`cells` may be empty.
     reason : str
@@ -82,7 +103,7 @@ class SolverResult:
         ``"time_s"`` and ``"discharge_current_A"`` over the averaging window.
     """
 
-    status: Literal["ok", "not_converged", "failed"]
+    status: Literal["ok", "oscillating", "not_converged", "failed"]
     reason: str
     cells: pd.DataFrame
     globals: dict[str, float | bool | str]
@@ -90,8 +111,8 @@ class SolverResult:
 
     @property
     def converged(self) -> bool:
-        """True when :attr:`status` is ``"ok"``."""
-        return self.status == "ok"
+        """True when :attr:`status` is ``"ok"`` or ``"oscillating"`` (usable averages)."""
+        return self.status in ("ok", "oscillating")
 
     @property
     def z_m(self) -> np.ndarray:

@@ -14,6 +14,8 @@ _INT_RANGES = {
     "n_average_windows": (1, 20),
     "ion_scheme_order": (1, 2),
     "warmup_coarsening": (1, 8),
+    "time_order": (1, 2),
+    "min_oscillation_periods": (2, 50),
 }
 _FLOAT_RANGES = {
     "cfl": (0.05, 0.95),
@@ -31,7 +33,13 @@ _FLOAT_RANGES = {
     "wall_secondary_yield": (0.0, 0.98),
     "wall_loss_scale": (0.0, 10.0),
     "max_floor_fraction": (0.0, 1.0),
+    "wall_transition_gaps": (0.02, 5.0),
+    "ion_neutral_collision_scale": (0.0, 10.0),
+    "quiescent_window_fraction": (0.05, 1.0),
+    "energy_bound_tolerance": (0.0, 0.2),
 }
+#: Wall materials with a secondary-electron yield fit (see profshape.solver.walls).
+_WALL_MATERIALS = ("boron_nitride", "alumina", "borosil", "constant")
 
 
 @dataclass(frozen=True)
@@ -68,18 +76,49 @@ class SolverSettings:
         Plasma density floor [m^-3].
     electron_temperature_floor_eV, electron_temperature_ceiling_eV : float
         Clip range of T_e [eV] (defaults 0.5 and 250).
+    wall_material : str, default="boron_nitride"
+        Channel-wall material whose secondary-electron yield sigma(T_e) is
+        used (``"boron_nitride"``, ``"alumina"``, ``"borosil"``, a boron
+        nitride - silica ceramic; or ``"constant"`` for
+        ``wall_secondary_yield``); see :mod:`profshape.solver.walls`. The
+        yield is capped at the space-charge-saturated value.
     wall_secondary_yield : float, default=0.5
-        Effective secondary-electron emission yield of the channel walls
-        (sheath energy-loss model), in [0, 0.98].
+        Constant effective secondary-electron yield, used only with
+        ``wall_material = "constant"``, in [0, 0.98].
     wall_loss_scale : float, default=1.0
-        Multiplier on the electron-wall collision frequency and wall energy
-        loss (0 switches the wall model off).
+        Multiplier on the wall fluxes of all species (ion loss, neutral
+        re-emission, electron collection and sheath energy loss); 0 switches
+        the walls off.
+    wall_transition_gaps : float, default=0.25
+        Width of the smooth (tanh) fade-out of the wall terms across the
+        channel exit plane, in channel gaps (r_o - r_i).
+    ion_neutral_collision_scale : float, default=1.0
+        Multiplier on the charge-exchange and elastic ion-neutral momentum
+        transfer (0 switches them off).
+    time_order : {1, 2}, default=2
+        Time integration of ions and neutrals: 1 = forward Euler, 2 = SSP-RK2
+        (Shu and Osher 1988).
+    min_oscillation_periods : int, default=5
+        An oscillating discharge is accepted only when every averaging span
+        holds at least this many periods in total.
+    quiescent_window_fraction : float, default=0.25
+        Quiescent fast path: when the current's relative rms is below 1 %,
+        windows of this fraction of ``window_s`` are compared, with the
+        tolerance scaled by the same fraction (the same bound on the drift
+        rate, tolerance / window_s).
+    energy_bound_tolerance : float, default=0.02
+        Relative margin on the ion energy bound: a run whose peak ion speed
+        exceeds (1 + margin) sqrt(2 e phi_max / M), whose exit ion energy
+        exceeds (1 + margin) (V_d + anode fall), or whose potential rises
+        above V_d + anode fall by more than margin * V_d plus 2 T_e (the
+        anode pre-sheath), is "failed" with the reason.
     max_floor_fraction : float, default=0.02
         Largest fraction of cell-steps that may hit a floor or ceiling in the
         averaging window before the result is marked "not_converged".
     ion_scheme_order : {1, 2}, default=2
         Spatial order of the ion fluxes: 1 = first-order Rusanov, 2 = MUSCL
-        reconstruction of density and velocity with minmod slopes.
+        reconstruction of density and velocity (van Leer limiter; also used
+        for the neutrals).
     warmup_time_s : float, default=2.0e-4
         Start-up transient marched first on a grid ``warmup_coarsening``
         times coarser (cheaper), then interpolated onto the solver grid; the
@@ -108,8 +147,22 @@ class SolverSettings:
     ion_scheme_order: int = 2
     warmup_time_s: float = 2.0e-4
     warmup_coarsening: int = 2
+    wall_material: str = "boron_nitride"
+    wall_transition_gaps: float = 0.25
+    ion_neutral_collision_scale: float = 1.0
+    time_order: int = 2
+    min_oscillation_periods: int = 5
+    quiescent_window_fraction: float = 0.25
+    energy_bound_tolerance: float = 0.02
 
     def __post_init__(self) -> None:
+        material = self.wall_material
+        if not isinstance(material, str) or material.strip().lower() not in _WALL_MATERIALS:
+            raise InputDataError(
+                f"solver.wall_material must be one of {', '.join(_WALL_MATERIALS)}; "
+                f"got {material!r}."
+            )
+        object.__setattr__(self, "wall_material", material.strip().lower())
         for key, (lo, hi) in _INT_RANGES.items():
             value = getattr(self, key)
             if isinstance(value, bool) or not isinstance(value, int | float) or value != int(value):
@@ -137,6 +190,6 @@ class SolverSettings:
                 "solver.electron_temperature_floor_eV must be below electron_temperature_ceiling_eV."
             )
 
-    def to_dict(self) -> dict[str, float | int]:
+    def to_dict(self) -> dict[str, float | int | str]:
         """Plain-dict form (same keys as the TOML ``[solver]`` table)."""
         return asdict(self)
