@@ -93,6 +93,7 @@ n_cells = 160
 # timeout_s = 600.0
 # retries = 0
 # grid_points = 251
+# grid_z_m = [0.0, 0.0625]
 # version = "0"
 '''
 
@@ -105,6 +106,7 @@ command = ["./my_code", "--input", "{input}"]   # an argument list, never a shel
 timeout_s = 600.0                 # a run past this is killed (its whole process tree)
 retries = 0                       # re-runs of a failed run before it counts as failed
 grid_points = 251                 # points of the profile.csv written for the program
+# grid_z_m = [0.0, 0.0625]        # its range [m]; default: [device] domain, else [0, 0.0625]
 version = "0"                     # your code's version: part of the cache key
 cache = true
 # solver = {}                     # (built-in solver settings; unused here)
@@ -129,6 +131,7 @@ batch_size = 1                    # proposals per round (batch noisy EI when > 1
 seed = 0
 # target_reduced_chi2 = 1.0       # stop at the noise floor
 # patience = 20                   # stop after this many trials without improvement
+# stop_after_failures = 10        # stop after this many trials in a row failed for the same reason
 # strategy = "trust_region"       # default; "global" or "hybrid"
 # trust_region_warmup = 12        # global trials before the trust region (default from d)
 # num_restarts = 8                # acquisition optimiser restarts
