@@ -115,11 +115,16 @@ def test_surrogate_path_matches_closed_form(linear_case):
     assert result.map_source in ("surrogate_optimum", "best_trial")
     # The check ran the real model and agrees with the surrogate.
     assert result.check.n_ok == 8 and result.check.passed
-    # The first refinement round already agrees with the surrogate, so refinement stops
-    # there: 8 refinement + 1 MAP + 8 check runs, all logged in the trial layout.
+    # The first refinement round already agrees with the surrogate and its stated error
+    # at posterior draws is below 1 nat, so refinement stops there: 8 refinement + 1 MAP
+    # + 8 check runs, all logged in the trial layout and counted against the budget.
     refinement = result.diagnostics["refinement"]
-    assert len(refinement) == 1 and refinement[0]["disagree_fraction"] == 0.0
+    assert [r.get("n_runs", 0) for r in refinement] == [8, 0]
+    assert refinement[0]["disagree_fraction"] == 0.0
+    assert "stated error" in result.diagnostics["refine_stop_reason"]
     assert result.diagnostics["n_forward_runs"] == 17
+    assert result.diagnostics["forward_runs_by_use"] == {
+        "posterior_refine": 8, "posterior_map": 1, "posterior_check": 8}
     assert set(result.forward_runs["source"]) == {"posterior_refine_1", "posterior_map",
                                                   "posterior_check"}
     for key in ("acceptance_fraction", "autocorr_time", "effective_sample_size"):
