@@ -148,8 +148,10 @@ class OutputLayout:
 
             index = problem.names.index(DISCREPANCY_NAME)
             bounds = tuple(problem.bounds[index])
-        return cls(problem.dataset, problem.likelihood, discrepancy_index=index,
-                   discrepancy_log10_bounds=bounds)
+        layout = cls(problem.dataset, problem.likelihood, discrepancy_index=index,
+                     discrepancy_log10_bounds=bounds)
+        layout.n_fitted = int(problem.n_fitted)
+        return layout
 
     # ------------------------------------------------------------ vectors
     def vector(self, predictions: Mapping[str, Prediction]) -> np.ndarray:
@@ -271,4 +273,7 @@ class OutputLayout:
 
     def dof(self) -> int:
         """Degrees of freedom used by the reduced chi-square: ``max(n - n_fitted, 1)``."""
-        return max(self.n_values - int(self.likelihood.n_fitted), 1)
+        p = getattr(self, "n_fitted", None)
+        if p is None:  # the problem's count unless given; 0 without a problem
+            p = self.likelihood.n_fitted or 0
+        return max(self.n_values - int(p), 1)
