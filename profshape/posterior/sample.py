@@ -29,6 +29,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -154,6 +155,10 @@ class _SurrogateTarget:
         return paths, list(range(k))
 
 
+#: Steps after burn-in of the short scout runs that choose refinement points
+#: (common practice, no source: enough to place draws, not to summarise them).
+_SCOUT_STEPS = 300
+
 #: Most L-BFGS iterations of a warm-started refit of the posterior GP (common
 #: practice, no source: a refit after a few new points moves the
 #: hyper-parameters little).
@@ -171,8 +176,10 @@ def _sample_target(
     names: list[str],
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, dict[str, Any]]:
     """One ensemble per target function (GP realisation) or per basin, pooled by weight."""
-    n_ens = settings.n_gp_draws if (target.kind == "surrogate" and settings.n_gp_draws) \
-        else settings.n_ensembles
+    if target.kind == "surrogate" and settings.n_gp_draws:
+        n_ens = settings.n_gp_draws  # one ensemble per GP realisation
+    else:  # one deterministic target: one ensemble per distinct basin
+        n_ens = max(1, min(settings.n_ensembles, len(basins)))
     functions, labels = target.targets(n_ens, rng)
     samples, logp, diags = [], [], []
     for e, f in enumerate(functions):
@@ -335,11 +342,18 @@ def sample_posterior(
         realisation = np.full(len(log_post), -1)
         diag = combine_diagnostics([run.diagnostics], names, warn=False)
     else:
-        target = _SurrogateTarget(settings)
+        target = _make_target(problem, trials, settings)
         unit_samples, log_post, realisation, diag, map_u, map_ll, map_source, u_all, ll_all = \
             _refine_and_sample(target, problem, settings, u_all, ll_all, lp_u, rng, names,
                                evaluate, refine_log, budget)
-        surrogate = target.surrogate
+        surrogate = getattr(target, "surrogate", None)
+        diag["target"] = target.kind
+        if target.kind == "emulator":
+            diag["emulator"] = target.info()
+        elif settings.surrogate_of == "outputs":
+            diag.setdefault("warnings", []).append(
+                "the trial log holds no usable predictions; sampled on the log-likelihood GP "
+                "instead of the output emulator")
     if settings.method == "exact":
         map_u, map_ll, map_source = _map_exact(u_all, ll_all, lp_u, unit_samples, log_post,
                                                evaluate if budget.left() > budget.n_check else None)
@@ -420,6 +434,16 @@ def sample_posterior(
     )
 
 
+def _make_target(problem: Any, trials: pd.DataFrame, settings: PosteriorSettings) -> Any:
+    if settings.surrogate_of == "outputs":
+        from .emulated import EmulatorTarget, emulator_training_set
+
+        x, y = emulator_training_set(problem, trials)
+        if len(x) >= problem.dim + 2 and y.shape[1] > 0:
+            return EmulatorTarget(problem, x, y, seed=settings.seed or 0)
+    return _SurrogateTarget(settings)
+
+
 class _Budget:
     """Forward runs of the posterior stage: what is left and what was spent on what."""
 
@@ -473,25 +497,31 @@ def _refine_and_sample(
             return out
 
         basins = find_basins(mean_post, u_train, score, settings.n_ensembles)
+        # a short scout run decides about refinement; the full run comes once, at the end
+        scout = replace(settings, n_steps=min(settings.n_steps, settings.burn_in + _SCOUT_STEPS),
+                        stop_on_autocorr=False)
         unit_samples, log_post, realisation, diag = _sample_target(
-            target, lp_u, settings, basins, u_train, score, rng, names)
+            target, lp_u, scout, basins, u_train, score, rng, names)
         probe = unit_samples[rng.choice(len(unit_samples), size=min(256, len(unit_samples)),
                                         replace=False)]
         err90 = float(np.quantile(_stated_error(target, probe), 0.9))
         entry: dict[str, Any] = {"round": round_, "stated_error_90_nats": err90,
                                  "n_basins": len(basins)}
+        final = None
         if refine_log and agreed and err90 <= settings.refine_threshold_nats:
-            stop_reason = (f"stated error of the log-likelihood at posterior draws "
-                           f"{err90:.3g} nats <= {settings.refine_threshold_nats:g} and the "
-                           "last forward runs agreed")
-            refine_log.append(entry)
-            break
+            final = (f"stated error of the log-likelihood at posterior draws "
+                     f"{err90:.3g} nats <= {settings.refine_threshold_nats:g} and the "
+                     "last forward runs agreed")
         n_run = min(settings.n_refine_draws, budget.for_refinement())
-        if round_ == settings.n_refine_rounds or n_run <= 0:
-            stop_reason = ("refinement rounds used up" if n_run > 0 else
-                           "posterior forward budget used up") + \
+        if final is None and (round_ == settings.n_refine_rounds or n_run <= 0):
+            final = ("refinement rounds used up" if n_run > 0 else
+                     "posterior forward budget used up") + \
                 f" (stated error {err90:.3g} nats, threshold {settings.refine_threshold_nats:g})"
+        if final is not None:
+            stop_reason = final
             refine_log.append(entry)
+            unit_samples, log_post, realisation, diag = _sample_target(
+                target, lp_u, settings, basins, u_train, score, rng, names)
             break
         # where the mass sits: half the runs where the target is least sure, half at random
         cand = unit_samples[rng.choice(len(unit_samples), size=min(8 * n_run,

@@ -11,6 +11,7 @@ from ..exceptions import InputDataError
 __all__ = ["PosteriorSettings"]
 
 SamplingMethod = Literal["surrogate", "exact"]
+SurrogateOf = Literal["outputs", "log_likelihood"]
 
 
 def _int_at_least(name: str, value: Any, low: int, fix: str) -> int:
@@ -65,6 +66,15 @@ class PosteriorSettings:
         log-likelihood fitted to the trials (cheap; the only practical choice
         with a costly forward model). ``"exact"``: every sampler step runs the
         forward model (``n_walkers * n_steps`` runs; for cheap models and tests).
+    surrogate_of : {"outputs", "log_likelihood"}, default="outputs"
+        What the surrogate models with ``method="surrogate"``. ``"outputs"``:
+        the forward model's outputs at the measured positions and the
+        measured scalars (:class:`profshape.emulator.OutputEmulator`), with the
+        emulator's predictive variance added to the data variance (Kennedy and
+        O'Hagan 2001; Higdon et al. 2008); needs the trials' stored
+        predictions, else falls back to ``"log_likelihood"`` with a warning.
+        ``"log_likelihood"``: a GP of the log-likelihood sampled through GP
+        realisations (for objectives that give only a number).
     n_walkers : int, default=32
         Walkers of the affine-invariant ensemble sampler, per GP realisation.
         Must be even and at least twice the number of coefficients (the
@@ -139,6 +149,7 @@ class PosteriorSettings:
     """
 
     method: SamplingMethod = "surrogate"
+    surrogate_of: SurrogateOf = "outputs"
     n_walkers: int = 32
     n_steps: int = 2000
     burn_in: int = 500
@@ -165,6 +176,11 @@ class PosteriorSettings:
         if self.method not in ("surrogate", "exact"):
             raise InputDataError(
                 f"PosteriorSettings.method must be 'surrogate' or 'exact'; got {self.method!r}."
+            )
+        if self.surrogate_of not in ("outputs", "log_likelihood"):
+            raise InputDataError(
+                "PosteriorSettings.surrogate_of must be 'outputs' or 'log_likelihood'; got "
+                f"{self.surrogate_of!r}."
             )
         nw = _int_at_least("n_walkers", self.n_walkers, 2, "Use an even number such as 32.")
         if nw % 2:

@@ -23,7 +23,6 @@ report prints them in ``summary.json``, ``report.md`` and on the terminal:
 
 from __future__ import annotations
 
-import json
 import math
 from dataclasses import dataclass, field
 from typing import Any
@@ -88,31 +87,12 @@ class CheckOutcome:
 
 
 # ------------------------------------------------------------ goodness of fit
-def _predictions_from_json(text: Any) -> dict[str, Any]:
-    from ..forward.base import Prediction
-
-    if not isinstance(text, str) or not text:
-        return {}
-    try:
-        payload = json.loads(text)
-    except ValueError:
-        return {}
-    out = {}
-    for label, p in payload.items():
-        if not isinstance(p, dict) or p.get("status", "ok") != "ok":
-            continue
-        z, v = p.get("z_m"), p.get("ion_velocity_m_s")
-        out[label] = Prediction("ok", None if not z else np.asarray(z, dtype=float),
-                                None if not v else np.asarray(v, dtype=float),
-                                {k: float(x) for k, x in (p.get("scalars") or {}).items()})
-    return out
-
-
 def best_fit_residuals(problem: Any, row: pd.Series) -> pd.DataFrame:
     """Per-value chi-square contributions of one trial-log row (from its stored predictions)."""
     from ..likelihood import residual_table
+    from .emulated import predictions_from_json
 
-    preds = _predictions_from_json(row.get("predictions"))
+    preds = predictions_from_json(row.get("predictions"))
     if not preds:
         return pd.DataFrame()
     sigma = None
