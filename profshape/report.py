@@ -31,6 +31,8 @@ PREDICTIONS_FILE = "predictions.csv"
 SUMMARY_FILE = "summary.json"
 REPORT_FILE = "report.md"
 SEARCH_FILE = "search.json"
+CHECKS_FILE = "checks.json"
+STAGE_FILE = "stage.json"
 MIN_OK_TRIALS_FOR_POSTERIOR = 5
 
 
@@ -86,9 +88,22 @@ def finish(cal: Any, result: Any, out: Path, executor: Any = None) -> dict[str, 
     elif post_cfg["enabled"]:
         notes.append(f"posterior skipped: only {n_ok} successful trials "
                      f"(at least {MIN_OK_TRIALS_FOR_POSTERIOR} needed)")
+    _write_checks(cal, result.trials, out)
     if notes:
         _atomic_text(out / "notes.json", json.dumps(notes, indent=2))
     return write_outputs(out, cal=cal)
+
+
+def _write_checks(cal: Any, trials: pd.DataFrame, out: Path) -> None:
+    """Run the checks (no forward run) and save them as ``checks.json``."""
+    from .posterior import PosteriorResult
+    from .posterior.verdicts import run_checks
+
+    posterior = None
+    if (out / POSTERIOR_DIR / "posterior.json").exists():
+        posterior = PosteriorResult.load(out / POSTERIOR_DIR)
+    checks = [c.to_dict() for c in run_checks(cal.problem, trials, posterior)]
+    _atomic_text(out / CHECKS_FILE, json.dumps(_clean(checks), indent=2))
 
 
 def _posterior_products(cal: Any, result: Any, out: Path, executor: Any, notes: list[str]) -> None:
@@ -97,7 +112,7 @@ def _posterior_products(cal: Any, result: Any, out: Path, executor: Any, notes: 
     post_cfg = cal.config.section("posterior")
     seed = post_cfg["seed"] if post_cfg["seed"] is not None else cal.search_settings.seed
     keys = ("n_walkers", "n_steps", "burn_in", "thin", "n_gp_draws", "n_refine_rounds",
-            "n_refine_draws", "n_check_draws")
+            "n_refine_draws", "n_check_draws", "forward_budget", "refine_threshold_nats")
     kwargs = {k: post_cfg[k] for k in keys if post_cfg[k] is not None}
     levels = tuple(float(v) for v in post_cfg["band_levels"])
     settings = PosteriorSettings(seed=seed, band_levels=levels, **kwargs)
@@ -109,6 +124,7 @@ def _posterior_products(cal: Any, result: Any, out: Path, executor: Any, notes: 
         bands = posterior_bands(cal.problem, posterior, levels=levels, n_draws=n_draws,
                                 executor=executor, seed=seed)
         bands.save(out / BANDS_DIR)
+        _save_stage(cal, posterior, bands, levels, seed, out)
         tables = [bands.scalars.assign(in_data=True, extrapolation=False, extrapolation_reason="")]
         if cal.prediction_points:
             tables.append(predict_scalars(cal.problem, posterior, cal.prediction_points,
@@ -118,6 +134,31 @@ def _posterior_products(cal: Any, result: Any, out: Path, executor: Any, notes: 
         predictions.to_csv(out / PREDICTIONS_FILE, index=False)
     notes.extend(f"{type(w.message).__name__}: {w.message}" for w in caught
                  if issubclass(w.category, ProfshapeWarning))
+
+
+def _save_stage(cal: Any, posterior: Any, bands: Any, levels: tuple[float, ...], seed: Any,
+                out: Path) -> None:
+    """Emulated bands and what the posterior stage spent (``posterior/stage.json``)."""
+    from .posterior.bands import emulated_bands
+
+    emulated = emulated_bands(posterior, levels, seed=seed)
+    if len(emulated):
+        emulated.to_parquet(out / BANDS_DIR / "bands_emulated.parquet", index=False)
+    n_pred = len(cal.prediction_points) * (max(int(cal.config.section("posterior")["n_band_draws"]),
+                                               1) + 1)
+    spent = dict(posterior.diagnostics.get("forward_runs_by_use", {}))
+    spent["bands"] = int(bands.extra.get("n_new_runs", 0))
+    spent["predictions"] = n_pred
+    stage = {"forward_runs": {**spent, "total": sum(spent.values())},
+             "forward_budget": posterior.diagnostics.get("forward_budget"),
+             "emulated_bands": None if not len(emulated) else {
+                 "file": f"{BANDS_DIR}/bands_emulated.parquet",
+                 "n_draws": emulated.attrs.get("n_draws"),
+                 "stable": emulated.attrs.get("stable"),
+                 "n_real_runs_compared": int(emulated["n_real"].iloc[0]),
+                 **{f"real_inside_{lev:g}_mean": float(emulated[f"real_inside_{lev:g}"].mean())
+                    for lev in levels}}}
+    _atomic_text(out / POSTERIOR_DIR / STAGE_FILE, json.dumps(_clean(stage), indent=2))
 
 
 # ------------------------------------------------------------------ outputs
@@ -161,6 +202,9 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
     posterior, bands, predictions = _load_optional(out)
     search_info = json.loads((out / SEARCH_FILE).read_text()) if (out / SEARCH_FILE).exists() else {}
     notes = json.loads((out / "notes.json").read_text()) if (out / "notes.json").exists() else []
+    checks = json.loads((out / CHECKS_FILE).read_text()) if (out / CHECKS_FILE).exists() else []
+    stage_path = out / POSTERIOR_DIR / STAGE_FILE
+    stage = json.loads(stage_path.read_text()) if stage_path.exists() else {}
     figures = _figures(out, cal, trials, posterior, bands)
     summary: dict[str, Any] = {
         "profshape_version": __version__,
@@ -180,6 +224,8 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
         "predictions": [] if predictions is None else _clean(predictions.to_dict("records")),
         "figures": figures,
         "notes": notes,
+        "checks": checks,
+        "checks_passed": bool(checks) and all(c["passed"] for c in checks),
         "report": REPORT_FILE,
     }
     if posterior is not None:
@@ -190,6 +236,11 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
             "diagnostics": _clean(posterior.diagnostics),
             "check": None if posterior.check is None else _clean(posterior.check.summary()),
             "samples_file": f"{POSTERIOR_DIR}/posterior_samples.parquet",
+            "effective_sample_size": posterior.diagnostics.get("effective_sample_size_total"),
+            "autocorr_time_steps": posterior.diagnostics.get("autocorr_time_steps"),
+            "forward_runs": stage.get("forward_runs"),
+            "forward_budget": stage.get("forward_budget"),
+            "emulated_bands": stage.get("emulated_bands"),
         }
     if bands is not None:
         summary["bands_files"] = {name: f"{BANDS_DIR}/bands_{name}.parquet"
@@ -310,6 +361,12 @@ def _fmt(x: Any, digits: int = 4) -> str:
     return f"{v:.{digits}g}"
 
 
+def _checks_section(checks: list[dict[str, Any]]) -> list[str]:
+    from .posterior.verdicts import checks_markdown
+
+    return checks_markdown(checks)
+
+
 def _report_markdown(summary: dict[str, Any], posterior: Any, bands: Any,
                      predictions: pd.DataFrame | None, trials: pd.DataFrame) -> str:
     lines = [f"# Calibration report: {summary.get('title') or 'profshape calibration'}", ""]
@@ -321,6 +378,7 @@ def _report_markdown(summary: dict[str, Any], posterior: Any, bands: Any,
         f"{summary['best_trial']}); 1 is the noise floor.",
         f"- profshape {summary['profshape_version']}",
         "",
+        *_checks_section(summary.get("checks") or []),
         "## Best fit",
         "",
         "| coefficient | best trial | posterior median | 68 % interval |",
@@ -338,7 +396,14 @@ def _report_markdown(summary: dict[str, Any], posterior: Any, bands: Any,
                   f"Sampled on the Gaussian-process surrogate of the log-likelihood "
                   f"(method: {d.get('method', 'n/a')}); MAP from {posterior.map_source}.",
                   f"Acceptance fraction: {_fmt(d.get('acceptance_fraction'))}; "
-                  f"minimum effective sample size: {_fmt(d.get('min_effective_sample_size'))}."]
+                  f"integrated autocorrelation time: {_fmt(d.get('autocorr_time_steps'))} steps; "
+                  f"effective sample size: {_fmt(d.get('effective_sample_size_total'))} "
+                  "(n_walkers x kept steps / tau, summed over ensembles)."]
+        spent = (summary.get("posterior") or {}).get("forward_runs")
+        if spent:
+            lines.append("Forward runs of the posterior stage: " + ", ".join(
+                f"{k} {v}" for k, v in spent.items())
+                + f" (sampling budget {(summary.get('posterior') or {}).get('forward_budget')}).")
         if posterior.check is not None:
             c = posterior.check.summary()
             lines.append("Posterior predictive check (real forward runs of posterior draws): "

@@ -347,6 +347,8 @@ def sample_posterior(
             _refine_and_sample(target, problem, settings, u_all, ll_all, lp_u, rng, names,
                                evaluate, refine_log, budget)
         surrogate = getattr(target, "surrogate", None)
+        if target.kind == "emulator":
+            surrogate = target  # kept on the result for emulated bands
         diag["target"] = target.kind
         if target.kind == "emulator":
             diag["emulator"] = target.info()
@@ -406,7 +408,7 @@ def sample_posterior(
         diag.setdefault("warnings", []).append(
             f"the predictive check ran {n_chk} of {settings.n_check_draws} draws "
             f"(forward_budget = {settings.forward_budget})")
-    if surrogate is not None:
+    if surrogate is not None and getattr(surrogate, "kind", "") != "emulator":
         diag["surrogate"] = {
             "lengthscale_unit": surrogate.lengthscale.tolist(),
             "outputscale": surrogate.outputscale,

@@ -37,11 +37,13 @@ __all__ = [
     "CheckOutcome",
     "best_fit_residuals",
     "best_in_intervals",
+    "checks_markdown",
     "goodness_of_fit",
     "map_vs_best",
     "predictive",
     "run_checks",
     "sampler",
+    "terminal_lines",
 ]
 
 #: Level of the intervals the best fit must lie in.
@@ -362,4 +364,35 @@ def run_checks(problem: Any, trials: pd.DataFrame, posterior: Any = None) -> lis
         out.append(map_vs_best(posterior.map_coefficients, posterior.map_log_likelihood,
                                posterior.map_source, best_c, float(best["log_likelihood"]),
                                posterior.samples))
+    return out
+
+
+def checks_markdown(checks: list[dict[str, Any]]) -> list[str]:
+    """The ``## Checks`` section of a report (from :meth:`CheckOutcome.to_dict` records)."""
+    if not checks:
+        return []
+    failed = [c for c in checks if not c["passed"]]
+    head = (f"**{len(failed)} of {len(checks)} checks FAILED: do not trust the best fit or the "
+            "bands until they pass.**" if failed else f"All {len(checks)} checks passed.")
+    lines = ["## Checks", "", head, "", "| check | verdict | finding | what to do |",
+             "|---|---|---|---|"]
+    for c in checks:
+        verdict = "passed" if c["passed"] else "**FAILED**"
+        msg = str(c["message"]).replace("|", "/")
+        advice = str(c.get("advice") or "").replace("|", "/") if not c["passed"] else ""
+        lines.append(f"| {c['name']} | {verdict} | {msg} | {advice} |")
+    return [*lines, ""]
+
+
+def terminal_lines(checks: list[dict[str, Any]]) -> list[str]:
+    """One line per check for the terminal; failures in full, with what to do."""
+    out = []
+    for c in checks or []:
+        if c["passed"]:
+            out.append(f"check {c['name']}: passed")
+        else:
+            text = f"check {c['name']}: FAILED - {c['message']}"
+            if c.get("advice"):
+                text += f" What to do: {c['advice']}"
+            out.append(text)
     return out
