@@ -39,6 +39,7 @@ def find_basins(
     n_max: int,
     *,
     n_starts: int | None = None,
+    extra_starts: list[np.ndarray] | None = None,
 ) -> list[tuple[np.ndarray, float]]:
     """Distinct local maxima of ``target`` over the unit cube, best first.
 
@@ -48,7 +49,9 @@ def find_basins(
         Vectorised ``(n, d) -> (n,)`` log-density (e.g. the surrogate's mean).
     pool_u, pool_score : ndarray
         Candidate starts (unit cube) and their scores; the best
-        ``n_starts`` (default ``4 * n_max``) distinct ones start L-BFGS-B.
+        ``n_starts`` (default ``2 * n_max``) distinct ones start L-BFGS-B.
+    extra_starts : list of ndarray, optional
+        Further starts (e.g. the optima of a previous call), tried first.
     n_max : int
         At most this many basins are returned.
 
@@ -59,22 +62,32 @@ def find_basins(
     """
     d = pool_u.shape[1]
     order = np.argsort(-np.asarray(pool_score, dtype=float))
-    n_starts = int(n_starts or 4 * n_max)
-    starts: list[np.ndarray] = []
+    n_starts = int(n_starts or 2 * n_max)
+    starts: list[np.ndarray] = [np.clip(np.asarray(s, dtype=float), 0.0, 1.0)
+                                for s in (extra_starts or [])]
+    n_total = n_starts + len(starts)
     for i in order:
-        if len(starts) >= n_starts:
+        if len(starts) >= n_total:
             break
         if all(np.max(np.abs(pool_u[i] - s)) > 1e-3 for s in starts):
             starts.append(pool_u[i])
+    step = 1e-6
 
-    def neg(u: np.ndarray) -> float:
-        v = float(target(u[None, :])[0])
-        return -v if np.isfinite(v) else 1e300
+    def neg_and_grad(u: np.ndarray) -> tuple[float, np.ndarray]:
+        # one batched call: the point and its d forward-difference neighbours (inward at
+        # the upper bound, so every evaluation stays in the cube)
+        h = np.where(u + step <= 1.0, step, -step)
+        pts = np.vstack([u[None, :], u[None, :] + np.diag(h)])
+        v = np.asarray(target(pts), dtype=float)
+        if not np.isfinite(v[0]):
+            return 1e300, np.zeros(d)
+        g = np.where(np.isfinite(v[1:]), (v[1:] - v[0]) / h, 0.0)
+        return -float(v[0]), -g
 
     optima = []
     for s in starts:
-        res = optimize.minimize(neg, s, method="L-BFGS-B", bounds=[(0.0, 1.0)] * d,
-                                options={"maxiter": 200})
+        res = optimize.minimize(neg_and_grad, s, jac=True, method="L-BFGS-B",
+                                bounds=[(0.0, 1.0)] * d, options={"maxiter": 200})
         optima.append((np.clip(res.x, 0.0, 1.0), -float(res.fun)))
     optima.sort(key=lambda t: -t[1])
     if not optima:

@@ -42,6 +42,10 @@ __all__ = ["EmulatorTarget", "emulator_training_set"]
 N_ERROR_DRAWS = 64
 #: Most L-BFGS iterations of a warm-started refit (common practice, no source).
 REFIT_MAX_ITER = 60
+#: Most hyper-parameter optimisations per posterior; later refits condition the score
+#: GPs on the new runs with the last hyper-parameters (common practice, no source: a
+#: few runs where the mass sits move the hyper-parameters little).
+MAX_OPTIMISED_FITS = 2
 
 
 def _matern52_batch(x1: np.ndarray, x2: np.ndarray, lengthscale: np.ndarray) -> np.ndarray:
@@ -172,6 +176,7 @@ class EmulatorTarget:
         self.seed = int(seed)
         self.emulator: Any = None
         self.n_fits = 0
+        self.n_optimised_fits = 0
         self._rng = np.random.default_rng(seed)
 
     # -------------------------------------------------------------- data
@@ -189,8 +194,12 @@ class EmulatorTarget:
                 self.y = np.vstack([self.y, y[None, :]])
 
     def fit(self, u: np.ndarray | None = None, ll: np.ndarray | None = None) -> None:
-        """(Re)fit the emulator on the stored runs; refits start from the last fit's
-        hyper-parameters and are capped at :data:`REFIT_MAX_ITER` iterations."""
+        """(Re)fit the emulator on the stored runs.
+
+        Refits start from the last fit's hyper-parameters, are capped at
+        :data:`REFIT_MAX_ITER` iterations, and after :data:`MAX_OPTIMISED_FITS`
+        optimisations only condition on the new runs.
+        """
         from ..emulator import OutputEmulator
 
         warm = None if self.emulator is None else self.emulator.hyperparameters()
@@ -200,8 +209,10 @@ class EmulatorTarget:
         # duplicates make the score GPs' kernel matrix singular
         _, keep = np.unique(np.round(self.x, 12), axis=0, return_index=True)
         keep = np.sort(keep)
+        optimise = warm is None or self.n_optimised_fits < MAX_OPTIMISED_FITS
         self.emulator = em.fit(self.x[keep], self.y[keep], scale=self.layout.scale,
-                               warm_start=warm or None)
+                               warm_start=warm or None, optimize=optimise)
+        self.n_optimised_fits += int(bool(em.optimized_))
         self._scores = (None if em.score_model_ is None else _ScorePredictor(em.score_model_))
         self._basis = em.basis_ * em.scale_  # (k, m)
         self.n_fits += 1
@@ -250,4 +261,5 @@ class EmulatorTarget:
         return {"n_components": int(em.n_components_),
                 "explained_fraction": float(em.explained_fraction_),
                 "n_training_runs": len(em.train_X_),
+                "n_fits": self.n_fits, "n_optimised_fits": self.n_optimised_fits,
                 "n_outputs": int(em.mean_.size)}

@@ -157,7 +157,7 @@ class _SurrogateTarget:
 
 #: Steps after burn-in of the short scout runs that choose refinement points
 #: (common practice, no source: enough to place draws, not to summarise them).
-_SCOUT_STEPS = 300
+_SCOUT_STEPS = 200
 
 #: Most L-BFGS iterations of a warm-started refit of the posterior GP (common
 #: practice, no source: a refit after a few new points moves the
@@ -485,6 +485,7 @@ def _refine_and_sample(
     """
     u_train, ll_train = u_all, ll_all
     agreed = False
+    basins: list[tuple[np.ndarray, float]] = []
     stop_reason = "no refinement (n_refine_rounds = 0)"
     for round_ in range(settings.n_refine_rounds + 1):
         target.fit(u_train, ll_train)
@@ -498,9 +499,12 @@ def _refine_and_sample(
                 out[fin] = target.mean(u[fin]) + prior[fin]
             return out
 
-        basins = find_basins(mean_post, u_train, score, settings.n_ensembles)
+        basins = find_basins(mean_post, u_train, score, settings.n_ensembles,
+                             extra_starts=[b[0] for b in basins])
         # a short scout run decides about refinement; the full run comes once, at the end
-        scout = replace(settings, n_steps=min(settings.n_steps, settings.burn_in + _SCOUT_STEPS),
+        scout_burn = min(settings.burn_in, _SCOUT_STEPS)
+        scout = replace(settings, burn_in=scout_burn,
+                        n_steps=min(settings.n_steps, scout_burn + _SCOUT_STEPS),
                         stop_on_autocorr=False)
         unit_samples, log_post, realisation, diag = _sample_target(
             target, lp_u, scout, basins, u_train, score, rng, names)
