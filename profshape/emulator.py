@@ -129,6 +129,9 @@ class OutputEmulator:
         runs [output units squared]; part of every predictive variance.
     score_model_ : SingleTaskGP or None
         The batched GP of the ``k`` scores (``None`` when ``k = 0``).
+    optimized_ : bool
+        Whether this fit optimised the hyperparameters (``False``: loaded
+        from ``warm_start`` with ``optimize=False``).
     train_X_, train_Y_ : ndarray
         Training data.
     """
@@ -156,7 +159,8 @@ class OutputEmulator:
 
     # ------------------------------------------------------------------ fit
     def fit(self, X_unit: Any, Y: Any, scale: Any | None = None,
-            warm_start: dict[str, Sequence[float]] | None = None) -> OutputEmulator:
+            warm_start: dict[str, Sequence[float]] | None = None,
+            optimize: bool = True) -> OutputEmulator:
         """Fit the basis and the score GPs.
 
         Parameters
@@ -174,6 +178,10 @@ class OutputEmulator:
             Raw hyperparameters of an earlier fit (:meth:`hyperparameters`),
             used as the starting point when the number of components and the
             dimension match and they score better than the default start.
+        optimize : bool, default=True
+            Optimise the hyperparameters. ``False`` with a matching
+            ``warm_start`` loads those hyperparameters and only conditions the
+            GPs on the data (cheap); without one it optimises anyway.
 
         Returns
         -------
@@ -234,25 +242,32 @@ class OutputEmulator:
         self._mean_t = torch.as_tensor(self.mean_, dtype=DTYPE)
         self._resid_sd_t = torch.as_tensor(np.sqrt(self.residual_variance_), dtype=DTYPE)
         self.score_model_ = None
+        self.optimized_ = False
         if k:
-            self.score_model_ = self._fit_scores(X, scores, warm_start)
+            self.score_model_ = self._fit_scores(X, scores, warm_start, optimize)
         return self
 
     def _fit_scores(self, X: np.ndarray, scores: np.ndarray,
-                    warm: dict[str, Sequence[float]] | None) -> SingleTaskGP:
+                    warm: dict[str, Sequence[float]] | None, optimize: bool = True
+                    ) -> SingleTaskGP:
         x = torch.as_tensor(X, dtype=DTYPE)
         y = torch.as_tensor(scores, dtype=DTYPE)
         k, d = y.shape[-1], x.shape[-1]
         model = SingleTaskGP(
             x, y,
             covar_module=get_covar_module_with_dim_scaled_prior(
-                ard_num_dims=d, batch_shape=torch.Size([k]), use_rbf_kernel=False),
+                ard_num_dims=d, batch_shape=torch.Size([k] if k > 1 else []),
+                use_rbf_kernel=False),
             outcome_transform=Standardize(m=k),
         )
         mll = ExactMarginalLogLikelihood(model.likelihood, model)
         # deferred import: profshape.search imports this module's users, not the reverse
         from .search.surrogate import _map_objective, hyperparameters, set_hyperparameters
 
+        if warm and not optimize and set_hyperparameters(model, warm):
+            model.eval()
+            return model
+        self.optimized_ = True
         if warm:
             default = hyperparameters(model)
             base = _map_objective(mll)
@@ -394,8 +409,10 @@ class OutputPosterior(Posterior):
         k = self._k
         out = self.offset + base_samples[..., k:] * self.residual_sd
         if self.score_posterior is not None:
-            scores = self.score_posterior.rsample_from_base_samples(
-                sample_shape, base_samples[..., :k])
+            base = base_samples[..., :k]
+            if len(self.score_posterior.base_sample_shape) == len(self._batch_q):
+                base = base[..., 0]  # one component: a single-output posterior
+            scores = self.score_posterior.rsample_from_base_samples(sample_shape, base)
             out = out + scores @ self.basis
         return out
 

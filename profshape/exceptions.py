@@ -7,6 +7,7 @@ Every error raised for bad input derives from :class:`InputDataError`, itself a
 from __future__ import annotations
 
 __all__ = [
+    "BoundWarning",
     "ConfigError",
     "ConvergenceWarning",
     "ForwardModelError",
@@ -47,3 +48,11 @@ class ProfshapeWarning(UserWarning):
 
 class ConvergenceWarning(ProfshapeWarning):
     """A solver, fit or sampler did not meet its convergence test."""
+
+
+class BoundWarning(ProfshapeWarning):
+    """A best-fit coefficient sits on (within 1 % of) a bound of its search range.
+
+    The best fit may lie beyond it: widen that bound and search again (the
+    message names the coefficient, the side and the bound's value).
+    """

@@ -192,6 +192,25 @@ class OutputLayout:
                 vals.append(float(pred.scalars[name]))
         return np.array(vals + slopes, dtype=float)
 
+    def vector_from_json(self, text: str) -> np.ndarray | None:
+        """The output vector of a trial-log ``predictions`` cell (JSON), or ``None``
+        when it cannot be rebuilt (a failed trial, a log without predictions)."""
+        import json
+
+        try:
+            raw = json.loads(text) if isinstance(text, str) else None
+            if not isinstance(raw, dict):
+                return None
+            preds = {lab: Prediction(d.get("status", "failed"),
+                                     None if d.get("z_m") is None else np.asarray(d["z_m"]),
+                                     None if d.get("ion_velocity_m_s") is None
+                                     else np.asarray(d["ion_velocity_m_s"]),
+                                     dict(d.get("scalars") or {}))
+                     for lab, d in raw.items()}
+            return self.vector(preds)
+        except (InputDataError, ValueError, TypeError, KeyError, AttributeError):
+            return None
+
     def values(self, Y: Any) -> Any:
         """The value columns ``Y[..., :n_values]`` (the slopes dropped)."""
         return Y[..., : self.n_values]

@@ -294,8 +294,11 @@ def _restore(search: Search, log: TrialLog, settings: SearchSettings, problem: A
         u = np.array([row[f"u__{n}"] for n in problem.names], dtype=float)
         ok = row["status"] == "ok"
         value = float(row["reduced_chi2"]) if ok else math.nan
+        outputs = None
+        if ok and search.layout is not None:
+            outputs = search.layout.vector_from_json(row.get("predictions"))
         finished.append(Observation(int(row["trial"]), int(row["batch"]), str(row["source"]),
-                                    u, value, ok))
+                                    u, value, ok, outputs))
         done.add(int(row["trial"]))
     in_flight = []
     for p in side.get("in_flight", []):
@@ -376,7 +379,8 @@ def run_search(
         for run, outcome, finished_at in runner.wait_finished():
             row = _row(problem, run, outcome, finished_at, settings.seed)
             value = row["reduced_chi2"]
-            search.tell(run.proposal.trial, value if outcome.ok else None, ok=outcome.ok)
+            search.tell(run.proposal.trial, value if outcome.ok else None, ok=outcome.ok,
+                        outputs=search.outputs_of(outcome.predictions) if outcome.ok else None)
             log.append(row)
             progress.update(outcome.ok, value, search.kind_of(run.proposal.trial, run.source))
         log.write_sidecar(_sidecar(search, settings, problem, None))

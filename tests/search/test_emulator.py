@@ -155,3 +155,16 @@ def test_layout_refuses_failed_or_short_predictions():
     short = Prediction("ok", np.linspace(0.0, 0.03, 5), np.ones(5), {"discharge_current": 1.0})
     with pytest.raises(InputDataError, match="cover"):
         layout.vector({"a": short, "b": _prediction(0.0)})
+
+
+def test_one_component_posterior_has_the_output_shape():
+    rng = np.random.default_rng(2)
+    x = rng.random((8, 2))
+    y = np.sin(3 * x[:, :1]) * Z[None]  # rank 1
+    em = OutputEmulator().fit(x, y)
+    assert em.n_components_ == 1
+    post = em.posterior(torch.as_tensor(rng.random((6, 2, 2))))
+    s = SobolQMCNormalSampler(torch.Size([16]), seed=0)(post)
+    assert s.shape == (16, 6, 2, Z.size)
+    np.testing.assert_allclose(s.mean(0).detach().numpy(), post.mean.detach().numpy(),
+                               atol=0.5 * float(post.variance.max().sqrt()) + 1e-9)
