@@ -122,7 +122,7 @@ def _posterior_products(cal: Any, result: Any, out: Path, executor: Any, notes: 
         posterior.save(out / POSTERIOR_DIR)
         n_draws = int(post_cfg["n_band_draws"])
         bands = posterior_bands(cal.problem, posterior, levels=levels, n_draws=n_draws,
-                                executor=executor, seed=seed)
+                                executor=executor, seed=seed, reuse_runs=True)
         bands.save(out / BANDS_DIR)
         _save_stage(cal, posterior, bands, levels, seed, out)
         tables = [bands.scalars.assign(in_data=True, extrapolation=False, extrapolation_reason="")]

@@ -295,7 +295,7 @@ def posterior_bands(
     n_profile_draws: int = 1000,
     seed: int | None = 0,
     magnetic_field_T: Callable[[np.ndarray, Any], np.ndarray] | None = None,
-    reuse_runs: bool = True,
+    reuse_runs: bool = False,
 ) -> PosteriorBands:
     """Bands of the profile, the ion velocity and the scalar outputs.
 
@@ -323,10 +323,11 @@ def posterior_bands(
         model's ``device.magnetic_field`` (times the point's field scale) when
         there is one, as with the built-in solver; otherwise a Bohm-type
         profile band is of the coefficient [-].
-    reuse_runs : bool, default=True
+    reuse_runs : bool, default=False
         Count the posterior's own forward runs of posterior draws (the
         predictive check) and of the MAP among the ``n_draws`` (they are draws
-        from the same posterior), so only the rest are run here.
+        from the same posterior), so only the rest are run here. Only for the
+        problem the posterior was sampled on (its runs are of that model).
         ``extra["n_new_runs"]`` says how many were.
 
     Returns

@@ -11,6 +11,8 @@ report prints them in ``summary.json``, ``report.md`` and on the terminal:
   observables that dominate the misfit;
 - ``predictive``: the posterior predictive check
   (:func:`~profshape.posterior.check.judge_check`);
+- ``refinement``: the surrogate's stated error of the log-likelihood at
+  posterior draws fell below ``refine_threshold_nats`` within the budget;
 - ``sampler``: one integrated autocorrelation time tau (the largest over the
   coefficients and ensembles, emcee's estimator) and one effective sample
   size ``sum over ensembles of n_walkers * n_kept_steps / tau``; fails when a
@@ -41,6 +43,7 @@ __all__ = [
     "goodness_of_fit",
     "map_vs_best",
     "predictive",
+    "refinement",
     "run_checks",
     "sampler",
     "terminal_lines",
@@ -200,6 +203,27 @@ def sampler(diagnostics: dict[str, Any]) -> CheckOutcome:
     return CheckOutcome("sampler", True, text + ".", "", details)
 
 
+def refinement(diagnostics: dict[str, Any], threshold_nats: float | None = None) -> CheckOutcome:
+    """Did refinement bring the surrogate's stated error at posterior draws below its threshold?"""
+    log = diagnostics.get("refinement") or []
+    reason = str(diagnostics.get("refine_stop_reason", ""))
+    err = log[-1].get("stated_error_90_nats") if log else None
+    spent = diagnostics.get("forward_runs_by_use", {})
+    details = {"stop_reason": reason, "stated_error_90_nats": err, "rounds": len(log),
+               "threshold_nats": threshold_nats, "forward_runs_by_use": spent,
+               "forward_budget": diagnostics.get("forward_budget")}
+    what = diagnostics.get("target", "surrogate")
+    if reason.startswith("stated error"):
+        return CheckOutcome("refinement", True, f"the {what}'s {reason}.", "", details)
+    return CheckOutcome(
+        "refinement", False,
+        f"refinement stopped before the {what} was accurate enough where the posterior mass "
+        f"sits: {reason}. The posterior carries the {what}'s uncertainty (wider than the "
+        "data alone allow).",
+        "raise [posterior] forward_budget (and n_refine_rounds) so that refinement reaches "
+        "its threshold", details)
+
+
 def _interval(x: np.ndarray, level: float) -> tuple[float, float]:
     lo, hi = np.quantile(x, [(1 - level) / 2, (1 + level) / 2])
     return float(lo), float(hi)
@@ -354,6 +378,10 @@ def run_checks(problem: Any, trials: pd.DataFrame, posterior: Any = None) -> lis
     if posterior is None:
         return out
     out.append(predictive(posterior.check))
+    if posterior.diagnostics.get("refinement") is not None and \
+            posterior.diagnostics.get("method", "surrogate") == "surrogate":
+        out.append(refinement(posterior.diagnostics,
+                              posterior.settings.get("refine_threshold_nats")))
     out.append(sampler(posterior.diagnostics))
     ok = trials[trials["status"] == "ok"]
     if len(ok):

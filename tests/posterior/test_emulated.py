@@ -155,3 +155,30 @@ def test_two_symmetric_modes_get_equal_weights():
     assert 0.3 < frac < 0.7, frac
     # each mode near +-|c1| of the least-squares fit
     assert abs(np.median(c1[c1 > 0]) + np.median(c1[c1 < 0])) < 0.1
+
+
+def test_check_fails_when_the_emulator_learnt_a_wrong_model(linear_case):
+    # The trial log's stored outputs are shifted by 2 sigma (an emulator trained on the
+    # wrong model). Without refinement, the real runs of the posterior draws disagree
+    # with what the emulator predicts: the predictive check must fail and say so.
+    import json
+
+    from profshape.posterior import PosteriorCheckWarning
+
+    problem, trials = linear_case
+    bad = trials.copy()
+
+    def shift(text):
+        payload = json.loads(text)
+        for p in payload.values():
+            p["ion_velocity_m_s"] = [v + 800.0 for v in p["ion_velocity_m_s"]]
+        return json.dumps(payload)
+
+    bad["predictions"] = bad["predictions"].map(shift)
+    settings = PosteriorSettings(n_walkers=8, n_steps=300, burn_in=100, n_refine_rounds=0,
+                                 n_check_draws=6, seed=0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        warnings.simplefilter("error", PosteriorCheckWarning)
+        with pytest.raises(PosteriorCheckWarning, match=r"sigma from the surrogate"):
+            sample_posterior(problem, bad, settings)

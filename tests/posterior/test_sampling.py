@@ -104,7 +104,8 @@ def test_surrogate_path_matches_closed_form(linear_case):
     problem, trials = linear_case
     mean, cov = exact_posterior(problem)
     settings = PosteriorSettings(n_walkers=16, n_steps=600, burn_in=200, n_gp_draws=4,
-                                 n_refine_draws=8, n_check_draws=8, seed=2)
+                                 n_refine_draws=8, n_check_draws=8, seed=2,
+                                 surrogate_of="log_likelihood")
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConvergenceWarning)
         result = sample_posterior(problem, trials, settings)
@@ -138,7 +139,8 @@ def test_check_warns_when_surrogate_disagrees(linear_case):
     bad = trials.copy()
     bad["log_likelihood"] = bad["log_likelihood"] + 50.0
     settings = PosteriorSettings(n_walkers=8, n_steps=200, burn_in=50, n_gp_draws=0,
-                                 n_refine_rounds=0, n_check_draws=6)
+                                 n_refine_rounds=0, n_check_draws=6,
+                                 surrogate_of="log_likelihood")
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConvergenceWarning)
         warnings.simplefilter("error", PosteriorCheckWarning)

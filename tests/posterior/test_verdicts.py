@@ -161,7 +161,20 @@ def test_run_checks_on_a_trial_log(linear_case, linear_posterior):
     problem, trials = linear_case
     checks = {c.name: c for c in run_checks(problem, trials, linear_posterior)}
     assert set(checks) == {"goodness_of_fit", "predictive", "sampler", "best_in_intervals",
-                           "map_vs_best"}
+                           "map_vs_best"}  # exact method: no refinement check
     assert checks["goodness_of_fit"].passed
     assert checks["best_in_intervals"].passed, checks["best_in_intervals"].message
     assert all(c.line().startswith(f"check {c.name}: ") for c in checks.values())
+
+
+def test_refinement_check_pass_and_fail():
+    from profshape.posterior.verdicts import refinement
+
+    ok = refinement({"refinement": [{"stated_error_90_nats": 0.4}], "target": "emulator",
+                     "refine_stop_reason": "stated error of the log-likelihood at posterior "
+                     "draws 0.4 nats <= 1 and the last forward runs agreed"}, 1.0)
+    assert ok.passed
+    bad = refinement({"refinement": [{"stated_error_90_nats": 6.0}], "target": "emulator",
+                      "refine_stop_reason": "posterior forward budget used up (stated error "
+                      "6 nats, threshold 1)"}, 1.0)
+    assert not bad.passed and "forward_budget" in bad.advice
