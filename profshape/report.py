@@ -224,6 +224,7 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
         "predictions": [] if predictions is None else _clean(predictions.to_dict("records")),
         "figures": figures,
         "notes": notes,
+        "best_fit": _best_fit(trials, posterior, names),
         "checks": checks,
         "checks_passed": bool(checks) and all(c["passed"] for c in checks),
         "report": REPORT_FILE,
@@ -249,6 +250,12 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
     _atomic_text(out / SUMMARY_FILE, json.dumps(_clean(summary), indent=2))
     _atomic_text(out / REPORT_FILE, _report_markdown(summary, posterior, bands, predictions, trials))
     return summary
+
+
+def _best_fit(trials: pd.DataFrame, posterior: Any, names: tuple[str, ...]) -> Any:
+    from .posterior.verdicts import best_fit
+
+    return best_fit(trials, posterior, names)
 
 
 def _get(cal: Any, key: str) -> Any:
@@ -361,6 +368,14 @@ def _fmt(x: Any, digits: int = 4) -> str:
     return f"{v:.{digits}g}"
 
 
+def _best_fit_line(fit: Any) -> list[str]:
+    if not fit or fit.get("source") == "trial":
+        return []
+    coeffs = ", ".join(f"{k} = {_fmt(v, 5)}" for k, v in fit["coefficients"].items())
+    return [f"- Best fit of all real runs ({fit['source']}): reduced chi-square "
+            f"{_fmt(fit['reduced_chi2'])}; {coeffs}"]
+
+
 def _checks_section(checks: list[dict[str, Any]]) -> list[str]:
     from .posterior.verdicts import checks_markdown
 
@@ -376,6 +391,7 @@ def _report_markdown(summary: dict[str, Any], posterior: Any, bands: Any,
         f"{summary['stop_reason']}",
         f"- Best reduced chi-square: {_fmt(summary['best_reduced_chi2'])} (trial "
         f"{summary['best_trial']}); 1 is the noise floor.",
+        *_best_fit_line(summary.get("best_fit")),
         f"- profshape {summary['profshape_version']}",
         "",
         *_checks_section(summary.get("checks") or []),

@@ -79,7 +79,7 @@ class PosteriorSettings:
         Walkers of the affine-invariant ensemble sampler, per GP realisation.
         Must be even and at least twice the number of coefficients (the
         sampler's requirement).
-    n_steps : int, default=2000
+    n_steps : int, default=10000
         Most steps per walker, burn-in included (see ``stop_on_autocorr``).
     burn_in : int, default=500
         Leading steps discarded, ``0 <= burn_in < n_steps``.
@@ -151,7 +151,7 @@ class PosteriorSettings:
     method: SamplingMethod = "surrogate"
     surrogate_of: SurrogateOf = "outputs"
     n_walkers: int = 32
-    n_steps: int = 2000
+    n_steps: int = 10000
     burn_in: int = 500
     thin: int = 1
     n_gp_draws: int = 8

@@ -37,6 +37,7 @@ from .check import CHECK_ALPHA
 
 __all__ = [
     "CheckOutcome",
+    "best_fit",
     "best_fit_residuals",
     "best_in_intervals",
     "checks_markdown",
@@ -350,6 +351,30 @@ def _best_row(frames: list[pd.DataFrame]) -> tuple[pd.Series | None, str]:
     return row, where
 
 
+def best_fit(trials: pd.DataFrame, posterior: Any = None,
+             names: Any = None) -> dict[str, Any] | None:
+    """The best fit over every real run (search trials and the posterior's runs).
+
+    Returns ``coefficients`` (by name), ``chi2``, ``reduced_chi2``, ``source``
+    (``"trial"`` or ``"posterior run"``) and ``trial`` (or None), or None
+    without a successful run.
+    """
+    frames = [(trials, "trial")]
+    if posterior is not None and len(getattr(posterior, "forward_runs", [])):
+        frames.append((posterior.forward_runs, "posterior run"))
+    row, _ = _best_row(frames)
+    if row is None:
+        return None
+    names = list(names if names is not None else posterior.names)
+    trial = row.get("trial")
+    is_trial = trial is not None and pd.notna(trial)
+    return {"coefficients": {n: float(row[n]) for n in names},
+            "chi2": float(row["chi2"]) if "chi2" in row and pd.notna(row["chi2"]) else None,
+            "reduced_chi2": float(row["reduced_chi2"]),
+            "source": "trial" if is_trial else f"posterior run ({row.get('source', '')})",
+            "trial": int(trial) if is_trial else None}
+
+
 def run_checks(problem: Any, trials: pd.DataFrame, posterior: Any = None) -> list[CheckOutcome]:
     """All checks of a calibration (no forward run: stored predictions are used).
 
@@ -387,8 +412,12 @@ def run_checks(problem: Any, trials: pd.DataFrame, posterior: Any = None) -> lis
     if len(ok):
         best = ok.loc[pd.to_numeric(ok["log_likelihood"], errors="coerce").idxmax()]
         best_c = {n: float(best[n]) for n in posterior.names}
-        out.append(best_in_intervals({"best trial": best_c, "MAP": posterior.map_coefficients},
-                                     posterior.samples, np.asarray(problem.bounds, dtype=float)))
+        points = {"MAP": posterior.map_coefficients}
+        if row is not None:  # the reported best fit: the best real run of all
+            points = {where.replace("the best fit", "best fit"):
+                      {n: float(row[n]) for n in posterior.names}, **points}
+        out.append(best_in_intervals(points, posterior.samples,
+                                     np.asarray(problem.bounds, dtype=float)))
         out.append(map_vs_best(posterior.map_coefficients, posterior.map_log_likelihood,
                                posterior.map_source, best_c, float(best["log_likelihood"]),
                                posterior.samples))
