@@ -70,7 +70,9 @@ def main() -> None:
             post = sample_posterior(problem, trials, settings)
         times.append(time.perf_counter() - start)
         runs.append(post.diagnostics["n_forward_runs"])
-        check_fail += int(post.check is not None and not post.check.passed)
+        if post.check is not None and not post.check.passed:
+            check_fail += 1
+            print(f"  repeat {rep + 1}: {post.check.message}")
         _ = [w for w in caught if issubclass(w.category, ConvergenceWarning)]
         values = log10_profile(post.samples.to_numpy(), Z_CHECK_M)
         band = profile_band(values, Z_CHECK_M, levels=(args.level,))
