@@ -81,6 +81,17 @@ def main() -> None:
     del _evaluate
 
     text, folder = demo_config_text(args.budget, None, args.workers)
+    here = Path(__file__).resolve().parents[1] / "data_demo"
+    if (here / "demo.toml").exists() and here != folder:
+        # a source checkout: its own demo files, with the same overrides
+        import profshape.cli as cli_mod
+
+        real = cli_mod.demo_data_folder
+        cli_mod.demo_data_folder = lambda: here
+        try:
+            text, folder = demo_config_text(args.budget, None, args.workers)
+        finally:
+            cli_mod.demo_data_folder = real
     cfg = parse_config(text, path=folder / "demo.toml", base_dir=folder)
     out = Path(args.out) if args.out else Path(tempfile.mkdtemp(prefix="demo-stages-")) / "run"
     from contextlib import ExitStack

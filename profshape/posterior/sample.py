@@ -2,21 +2,29 @@
 
 How the surrogate's own uncertainty is accounted for
 ----------------------------------------------------
-With ``method="surrogate"`` the log-likelihood is replaced by a GP fitted to
-the trials. Two mechanisms keep the GP's error out of the answer:
+With ``method="surrogate"`` the forward model is replaced by a surrogate fitted
+to the trials:
 
-1. *Sampling GP realisations.* The posterior is sampled separately on
-   ``n_gp_draws`` posterior function samples of the GP (pathwise conditioning,
-   see :mod:`~profshape.posterior.surrogate`) and the chains are pooled. The
-   pooled sample targets the posterior averaged over the surrogate's
-   uncertainty, so where the GP is unsure the sample spreads accordingly.
-2. *Refinement where the mass sits.* Each of up to ``n_refine_rounds``
-   rounds runs ``n_refine_draws`` posterior draws through the real forward
-   model, adds them to the GP's training set, refits and samples again: the
-   surrogate becomes exact where the posterior mass is, and spurious modes in
-   unexplored regions are visited and removed. With
-   ``refine_until_agreement`` the rounds stop as soon as a round's runs agree
-   with the surrogate (the same test as the predictive check).
+- ``surrogate_of="outputs"`` (default): the output emulator
+  (:mod:`~profshape.posterior.emulated`); its predictive variance is added to
+  the data variance in the likelihood (Kennedy and O'Hagan 2001; Higdon et al.
+  2008), so the sampler's target is deterministic and honest about the
+  emulator;
+- ``surrogate_of="log_likelihood"``: a GP of the log-likelihood; the posterior
+  is sampled on ``n_gp_draws`` GP realisations (pathwise conditioning, see
+  :mod:`~profshape.posterior.surrogate`) and pooled.
+
+Several modes: walker ensembles start in distinct basins of the target
+(:mod:`~profshape.posterior.basins`) and are pooled with Laplace weights.
+
+Refinement where the mass sits: each round a short scout run places draws; the
+surrogate's stated error of the log-likelihood is measured there, and, until
+its 90 % quantile is below ``refine_threshold_nats`` and the last real runs
+agreed with it, ``n_refine_draws`` draws (half where the surrogate is least
+sure) are run through the real model and the surrogate is refitted
+(warm-started, capped). The stage never makes more than ``forward_budget``
+forward runs and reports what it spent on what. The final chains stop on the
+autocorrelation criterion (:func:`~profshape.posterior.sampler.run_ensemble`).
 
 Finally ``n_check_draws`` fresh draws are run through the forward model and
 compared with the surrogate (:mod:`~profshape.posterior.check`).
@@ -284,9 +292,9 @@ def sample_posterior(
 
     Notes
     -----
-    Forward runs made: at most ``n_refine_rounds * n_refine_draws + 1 + n_check_draws``
-    with the surrogate method (each runs every operating point);
-    ``n_walkers * (n_steps + 1) + n_check_draws`` with the exact method.
+    Forward runs made: at most ``forward_budget`` with the surrogate method (each
+    runs every operating point; ``diagnostics["forward_runs_by_use"]`` says on
+    what); ``n_walkers * (n_steps + 1)`` more with the exact method.
     """
     settings = settings or PosteriorSettings()
     if not isinstance(settings, PosteriorSettings):

@@ -51,8 +51,9 @@ class EnsembleRun:
     diagnostics: dict[str, Any] = field(default_factory=dict)
 
 
-#: emcee's documentation ("Saving & monitoring progress") stops once the tau
-#: estimate changes by less than this fraction between checks.
+#: Stop once the tau estimate changes by less than this fraction between checks, as in
+#: emcee's tutorial on monitoring progress (from memory; that tutorial also asks for
+#: 100 tau, we use emcee's own reliability threshold of 50 tau, get_autocorr_time's tol).
 AUTOCORR_RTOL = 0.01
 
 
@@ -84,9 +85,9 @@ def run_ensemble(
         Seed of the sampler's random state.
     stop_on_autocorr : bool, default=False
         Stop before ``n_steps`` (then the most steps) once the kept chain is
-        longer than 50 integrated autocorrelation times and the estimate of tau
-        changed by less than 1 % since the previous check (emcee's
-        documentation, "Saving & monitoring progress").
+        longer than 50 integrated autocorrelation times (emcee's reliability
+        threshold) and the estimate of tau changed by less than 1 % since the
+        previous check (as in emcee's tutorial on monitoring progress; from memory).
     check_every : int, default=100
         Steps between two autocorrelation checks.
     min_steps : int, default=0

@@ -123,8 +123,9 @@ class PosteriorSettings:
         At most this many ok trials (the best ones) train the GP.
     stop_on_autocorr : bool, default=True
         Stop each chain before ``n_steps`` once its kept part is longer than 50
-        integrated autocorrelation times and the estimate is stable (emcee's
-        documentation); ``n_steps`` is then the most steps.
+        integrated autocorrelation times (emcee's reliability threshold) and the
+        estimate changed by less than 1 % since the last check (every 100
+        steps); ``n_steps`` is then the most steps.
     forward_budget : int, default=32
         Most forward runs of the posterior stage in :func:`sample_posterior`
         (refinement, MAP, predictive check; each runs every operating point).
