@@ -78,6 +78,8 @@ def main() -> None:
     post_pkg.posterior_bands = clock.wrap("posterior: bands", post_pkg.posterior_bands)
     post_pkg.predict_scalars = clock.wrap("posterior: predictions", post_pkg.predict_scalars)
     report.write_outputs = clock.wrap("figures, summary, report", report.write_outputs)
+    report._save_stage = clock.wrap("posterior: emulated bands", report._save_stage)
+    report._write_checks = clock.wrap("checks", report._write_checks)
     del _evaluate
 
     text, folder = demo_config_text(args.budget, None, args.workers)

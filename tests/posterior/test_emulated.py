@@ -182,3 +182,32 @@ def test_check_fails_when_the_emulator_learnt_a_wrong_model(linear_case):
         warnings.simplefilter("error", PosteriorCheckWarning)
         with pytest.raises(PosteriorCheckWarning, match=r"sigma from the surrogate"):
             sample_posterior(problem, bad, settings)
+
+
+def test_emulated_bands_match_closed_form_and_are_stable(linear_case):
+    # Bands of the model's ion velocity at the measured positions: for the linear model
+    # v = V0 + Phi c with the flat-prior posterior N(m, S), v at z_i is Gaussian with
+    # sd sqrt(Phi_i S Phi_i^T) (Bishop 2006, eq. 3.58 without the noise term). The
+    # emulated 95 % band must match its width, its quantiles must have settled, and the
+    # real check runs must mostly fall inside it.
+    from profshape.posterior.bands import emulated_bands
+
+    from ._linear import design_matrix
+
+    problem, trials = linear_case
+    mean, cov = exact_posterior(problem)
+    settings = PosteriorSettings(n_walkers=16, n_steps=1500, burn_in=200, n_check_draws=8,
+                                 forward_budget=20, seed=6)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        post = sample_posterior(problem, trials, settings)
+    band = emulated_bands(post, (0.95,), seed=1)
+    assert band.attrs["stable"] and band.attrs["n_draws"] >= 1000
+    iv = problem.dataset["300V"].ion_velocity
+    phi = design_matrix(iv.z_m, 1)
+    sd = np.sqrt(np.einsum("ij,jk,ik->i", phi, cov, phi))
+    width = (band["upper_0.95"] - band["lower_0.95"]).to_numpy()
+    ratio = width / (2 * stats.norm.ppf(0.975) * sd)
+    assert np.all((ratio > 0.85) & (ratio < 1.2)), ratio
+    assert band["n_real"].iloc[0] == 8
+    assert band["real_inside_0.95"].mean() >= 0.75
