@@ -195,7 +195,7 @@ def test_emulated_bands_match_closed_form_and_are_stable(linear_case):
     from ._linear import design_matrix
 
     problem, trials = linear_case
-    mean, cov = exact_posterior(problem)
+    _, cov = exact_posterior(problem)
     settings = PosteriorSettings(n_walkers=16, n_steps=1500, burn_in=200, n_check_draws=8,
                                  forward_budget=20, seed=6)
     with warnings.catch_warnings():
