@@ -178,3 +178,25 @@ def test_refinement_check_pass_and_fail():
                       "refine_stop_reason": "posterior forward budget used up (stated error "
                       "6 nats, threshold 1)"}, 1.0)
     assert not bad.passed and "forward_budget" in bad.advice
+
+
+def test_report_shows_the_same_ess_and_tau_as_the_summary_and_the_checks(linear_case,
+                                                                        linear_posterior):
+    # One effective sample size and one autocorrelation time: the report prints the
+    # numbers the summary holds; failing checks open the report, loudly.
+    from profshape.report import _report_markdown
+
+    problem, trials = linear_case
+    d = linear_posterior.diagnostics
+    checks = [c.to_dict() for c in run_checks(problem, trials, linear_posterior)]
+    checks.append({"name": "demo_fail", "passed": False, "message": "x", "advice": "y"})
+    summary = {"title": "t", "family": problem.family.name, "parameters": list(problem.names),
+               "n_trials": len(trials), "n_failed": 0, "stop_reason": "budget",
+               "best_reduced_chi2": 1.0, "best_trial": 0, "profshape_version": "0",
+               "best_coefficients": {}, "figures": [], "notes": [], "checks": checks,
+               "posterior": {"effective_sample_size": d["effective_sample_size_total"],
+                             "autocorr_time_steps": d["autocorr_time_steps"]}}
+    text = _report_markdown(summary, linear_posterior, None, None, trials)
+    assert f"effective sample size: {d['effective_sample_size_total']:.4g}" in text
+    assert f"integrated autocorrelation time: {d['autocorr_time_steps']:.4g} steps" in text
+    assert "checks FAILED" in text and text.index("## Checks") < text.index("## Best fit")
