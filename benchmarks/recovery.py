@@ -376,7 +376,7 @@ def _task(key: str, method: str, seed: int, n_cells: int) -> dict:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         c = METHODS[method](problem, budget, seed)
-    hist = np.array(c.history[:budget] + [math.inf])
+    hist = np.array([*c.history[:budget], math.inf])
     best = np.minimum.accumulate(hist)
     hit = np.flatnonzero(best <= target)
     return dict(case=key, method=method, seed=seed, budget=budget, target=target, truth=truth,
