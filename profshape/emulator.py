@@ -21,8 +21,10 @@ scalars, ...), as in Higdon, Gattiker, Williams and Rightley (2008,
    a Matern 5/2 kernel with one lengthscale per coefficient (ARD; the
    dimension-scaled log-normal lengthscale prior of Hvarfner et al. 2024,
    botorch's default) and its own hyperparameters per component, outcomes
-   standardised, hyperparameters fitted by maximum a posteriori of the exact
-   marginal likelihood (:func:`botorch.fit.fit_gpytorch_mll`);
+   standardised, a noise variance learnt down to ``1e-8`` of each score's
+   variance (the forward model is nearly deterministic), hyperparameters
+   fitted by maximum a posteriori of the exact marginal likelihood
+   (:func:`botorch.fit.fit_gpytorch_mll`);
 4. the discarded components are not dropped silently: their variance over
    the training runs, per column, is the residual variance
    ``residual_variance_`` (output units squared), added to every predictive
@@ -81,6 +83,8 @@ from botorch.models.model import Model
 from botorch.models.transforms import Standardize
 from botorch.models.utils.gpytorch_modules import get_covar_module_with_dim_scaled_prior
 from botorch.posteriors import Posterior
+from gpytorch.constraints import GreaterThan
+from gpytorch.likelihoods import GaussianLikelihood
 from gpytorch.mlls import ExactMarginalLogLikelihood
 from torch import Tensor
 
@@ -89,6 +93,8 @@ from .exceptions import ConvergenceWarning, InputDataError
 __all__ = ["EmulatorModel", "OutputEmulator", "OutputPosterior"]
 
 DTYPE = torch.float64
+#: Lower bound of the score GPs' noise variance (standardised scores).
+NOISE_FLOOR = 1e-8
 
 
 class OutputEmulator:
@@ -256,11 +262,16 @@ class OutputEmulator:
     @staticmethod
     def _new_model(x: Tensor, y: Tensor) -> SingleTaskGP:
         k, d = y.shape[-1], x.shape[-1]
+        batch = torch.Size([k] if k > 1 else [])
+        # a forward model is (nearly) deterministic: the noise may fall to 1e-8 of each
+        # score's variance (botorch's default floor of 1e-4 would blur the outputs by 1 %
+        # of their spread, many measurement sigmas near a fit); no prior pulls it up
+        likelihood = GaussianLikelihood(batch_shape=batch,
+                                        noise_constraint=GreaterThan(NOISE_FLOOR))
         return SingleTaskGP(
-            x, y,
+            x, y, likelihood=likelihood,
             covar_module=get_covar_module_with_dim_scaled_prior(
-                ard_num_dims=d, batch_shape=torch.Size([k] if k > 1 else []),
-                use_rbf_kernel=False),
+                ard_num_dims=d, batch_shape=batch, use_rbf_kernel=False),
             outcome_transform=Standardize(m=k),
         )
 
