@@ -30,7 +30,7 @@ runs to success (budget + 1 = never). Medians over seeds.
 
 Usage::
 
-    python benchmarks/recovery.py                       # every case, 3 seeds, all methods
+    python benchmarks/recovery.py                       # 12 cases, 3 seeds, all methods
     python benchmarks/recovery.py --quick               # 4 cases, 1 seed, composite + trust_region
     python benchmarks/recovery.py --cases A1,B2 --seeds 0,1 --methods composite,sobol
     python benchmarks/recovery.py --list                # the cases
@@ -200,6 +200,8 @@ CASES = [
     Case("C5", "C", "log_well", {}, "log_well", {}, (0.5, 0.45, 0.65, 0.25), 3, "standin",
          current=True),
 ]
+#: The cases run by default (A5 and C5 are extra: --cases A5,C5).
+DEFAULT_CASES = ["A1", "A2", "A3", "A4", "B1", "B2", "B3", "B4", "C1", "C2", "C3", "C4"]
 CASE_BY_KEY = {c.key: c for c in CASES}
 
 POSITION_SIGMA_M = 3e-4
@@ -387,7 +389,8 @@ def _task(key: str, method: str, seed: int, n_cells: int) -> dict:
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--cases", default="", help="comma-separated case keys (default all)")
+    ap.add_argument("--cases", default="", help="comma-separated case keys (default: the 12 "
+                    "of DEFAULT_CASES; A5, C5 on request)")
     ap.add_argument("--seeds", default="0,1,2", help="comma-separated seeds")
     ap.add_argument("--methods", default=",".join(METHODS), help="comma-separated methods")
     ap.add_argument("--n-cells", type=int, default=60, help="solver cells (coarse grid)")
@@ -404,7 +407,7 @@ def main() -> None:
                   f"{c.n_points} point(s), {c.model}, sigma {c.sigma_m_s:g} m/s"
                   f"{', discharge current' if c.current else ''} {c.note}")
         return
-    keys = [c.key for c in CASES] if not args.cases else args.cases.split(",")
+    keys = DEFAULT_CASES if not args.cases else args.cases.split(",")
     seeds = [int(s) for s in args.seeds.split(",")]
     methods = args.methods.split(",")
     if args.quick:

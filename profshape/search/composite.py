@@ -81,7 +81,7 @@ MAX_COMPONENTS = 12
 #: Hyperparameters are re-optimised while the training set is small, then each time it has
 #: grown by a tenth since the last optimisation (in between the GPs are conditioned on the
 #: new runs with the previous hyperparameters); common practice, no source.
-FULL_REFIT_BELOW = 40
+FULL_REFIT_BELOW = 20
 REFIT_GROWTH = 1.1
 #: Beyond this many trials the hyperparameters are optimised on this many: the best half
 #: by chi-square and an evenly spread selection of the rest (then every trial is used for
