@@ -27,6 +27,7 @@ from .composite import (
     FULL_REFIT_BELOW,
     REFIT_GROWTH,
     composite_acquisition,
+    composite_misfit,
     fit_emulator,
     propose_composite,
     stall_length,
@@ -441,8 +442,7 @@ class Search:
                 self._warm["emulator_meta"] = {"n_fit": [float(n)]}
         self.emulator_ = em
         self.model_ = em.model()
-        chi2 = np.asarray(self.layout.chi2(Y_ok, self.layout.discrepancy_from_unit(u_ok)))
-        self._train_composite = (u_ok, chi2)
+        self._train_composite = (u_ok, np.asarray(composite_misfit(self.layout, Y_ok, u_ok)))
 
     def trust_region(self) -> TrustRegionState:
         """Trust-region state now, replayed from the finished trials (see

@@ -195,3 +195,18 @@ def test_direct_score_prediction_matches_botorch_posterior(n_out):
         else:  # component-major blocks
             ref_c = ref_cov[:, 2 * c:2 * c + 2, 2 * c:2 * c + 2].numpy()
         np.testing.assert_allclose(cov, ref_c, rtol=1e-5, atol=1e-9)
+
+
+def test_fitted_discrepancy_misfit_is_the_deviance():
+    from profshape.search.composite import composite_misfit
+
+    data = _dataset()
+    layout = OutputLayout(data, discrepancy_index=1, discrepancy_log10_bounds=(1.0, 3.0))
+    preds = {"a": _prediction(0.001), "b": _prediction(-0.002)}
+    y = layout.vector(preds)
+    u = np.array([0.2, 0.75])  # discrepancy 10**(1 + 0.75 * 2) m/s
+    ref = evaluate_misfit(data, preds, discrepancy_sigma_m_s=10 ** 2.5)
+    assert float(composite_misfit(layout, y, u)) == pytest.approx(-2 * ref.log_likelihood,
+                                                                  rel=1e-12)
+    assert float(composite_misfit(OutputLayout(data), y, u)) == pytest.approx(
+        evaluate_misfit(data, preds).chi2, rel=1e-12)
