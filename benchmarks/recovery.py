@@ -263,6 +263,11 @@ def budget_for(dim: int) -> int:
 
 
 # ------------------------------------------------------------------ methods
+class BudgetExhausted(Exception):
+    """Raised by the objective once the budget is spent (not StopIteration: ``map`` inside
+    an optimiser would swallow that one silently and the optimiser would loop on)."""
+
+
 class Counter:
     """Objective on the unit cube recording every forward run's reduced chi-square."""
 
@@ -271,7 +276,7 @@ class Counter:
 
     def outcome(self, u):
         if len(self.history) >= self.budget:
-            raise StopIteration
+            raise BudgetExhausted
         out = self.problem.evaluate(self.problem.from_unit(np.clip(u, 0, 1)))
         self.history.append(out.misfit.reduced_chi2 if out.ok else math.inf)
         return out
@@ -317,7 +322,7 @@ def run_de(problem, budget, seed):
     try:
         differential_evolution(c, [(0.0, 1.0)] * problem.dim, init=_design(problem, seed),
                                seed=seed, maxiter=10**6, polish=True, tol=0, atol=0)
-    except StopIteration:
+    except BudgetExhausted:
         pass
     return c
 
@@ -325,7 +330,7 @@ def run_de(problem, budget, seed):
 def _run_optuna(problem, budget, seed, kind):
     import optuna
 
-    optuna.logging.set_verbosity(optuna.logging.WARNING)
+    optuna.logging.set_verbosity(optuna.logging.ERROR)
     c = Counter(problem, budget)
     n0 = 2 * problem.dim + 1
     if kind == "tpe":
@@ -344,7 +349,7 @@ def _run_optuna(problem, budget, seed, kind):
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        study.optimize(objective, n_trials=budget, catch=(StopIteration,))
+        study.optimize(objective, n_trials=budget, catch=(BudgetExhausted,))
     return c
 
 

@@ -95,6 +95,11 @@ def make_problem(n_cells: int, kind: str = "synthetic") -> CalibrationProblem:
     return problem
 
 
+class BudgetExhausted(Exception):
+    """Raised by the objective once the budget is spent (not StopIteration: ``map`` inside
+    an optimiser would swallow that one silently and the optimiser would loop on)."""
+
+
 class Counter:
     """Objective on the unit cube that records every forward run's reduced chi-square."""
 
@@ -103,7 +108,7 @@ class Counter:
 
     def outcome(self, u):
         if len(self.history) >= self.budget:
-            raise StopIteration
+            raise BudgetExhausted
         out = self.problem.evaluate(self.problem.from_unit(np.clip(u, 0, 1)))
         self.history.append(out.misfit.reduced_chi2 if out.ok else np.inf)
         return out
@@ -146,7 +151,7 @@ def run_de(problem, budget, seed, target):
     try:
         differential_evolution(c, [(0, 1)] * problem.dim, seed=seed, maxiter=10**6, popsize=3,
                                polish=True, tol=0, atol=0)
-    except StopIteration:
+    except BudgetExhausted:
         pass
     return c
 
@@ -159,7 +164,7 @@ def run_nm(problem, budget, seed, target):
             minimize(c, x0, method="Nelder-Mead", bounds=[(0.0, 1.0)] * problem.dim,
                      options={"maxfev": budget})
             x0 = np.random.default_rng(seed + len(c.history)).random(problem.dim)
-    except StopIteration:
+    except BudgetExhausted:
         pass
     return c
 
