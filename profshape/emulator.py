@@ -21,8 +21,10 @@ scalars, ...), as in Higdon, Gattiker, Williams and Rightley (2008,
    a Matern 5/2 kernel with one lengthscale per coefficient (ARD; the
    dimension-scaled log-normal lengthscale prior of Hvarfner et al. 2024,
    botorch's default) and its own hyperparameters per component, outcomes
-   standardised, hyperparameters fitted by maximum a posteriori of the exact
-   marginal likelihood (:func:`botorch.fit.fit_gpytorch_mll`);
+   standardised, a noise variance learnt down to ``1e-8`` of each score's
+   variance (the forward model is nearly deterministic), hyperparameters
+   fitted by maximum a posteriori of the exact marginal likelihood
+   (:func:`botorch.fit.fit_gpytorch_mll`);
 4. the discarded components are not dropped silently: their variance over
    the training runs, per column, is the residual variance
    ``residual_variance_`` (output units squared), added to every predictive
@@ -81,6 +83,8 @@ from botorch.models.model import Model
 from botorch.models.transforms import Standardize
 from botorch.models.utils.gpytorch_modules import get_covar_module_with_dim_scaled_prior
 from botorch.posteriors import Posterior
+from gpytorch.constraints import GreaterThan
+from gpytorch.likelihoods import GaussianLikelihood
 from gpytorch.mlls import ExactMarginalLogLikelihood
 from torch import Tensor
 
@@ -89,6 +93,8 @@ from .exceptions import ConvergenceWarning, InputDataError
 __all__ = ["EmulatorModel", "OutputEmulator", "OutputPosterior"]
 
 DTYPE = torch.float64
+#: Lower bound of the score GPs' noise variance (standardised scores).
+NOISE_FLOOR = 1e-8
 
 
 class OutputEmulator:
@@ -160,7 +166,7 @@ class OutputEmulator:
     # ------------------------------------------------------------------ fit
     def fit(self, X_unit: Any, Y: Any, scale: Any | None = None,
             warm_start: dict[str, Sequence[float]] | None = None,
-            optimize: bool = True) -> OutputEmulator:
+            optimize: bool = True, hyper_subset: Any | None = None) -> OutputEmulator:
         """Fit the basis and the score GPs.
 
         Parameters
@@ -182,6 +188,10 @@ class OutputEmulator:
             Optimise the hyperparameters. ``False`` with a matching
             ``warm_start`` loads those hyperparameters and only conditions the
             GPs on the data (cheap); without one it optimises anyway.
+        hyper_subset : array_like of int, optional
+            Rows of ``X_unit`` on which the hyperparameters are optimised (the
+            GPs are then conditioned on all rows with them); bounds the cost
+            of the fit for large ``n``. Default: all rows.
 
         Returns
         -------
@@ -243,31 +253,49 @@ class OutputEmulator:
         self._resid_sd_t = torch.as_tensor(np.sqrt(self.residual_variance_), dtype=DTYPE)
         self.score_model_ = None
         self.optimized_ = False
+        self._gp = None
         if k:
-            self.score_model_ = self._fit_scores(X, scores, warm_start, optimize)
+            self.score_model_ = self._fit_scores(X, scores, warm_start, optimize, hyper_subset)
+            self._gp = _ScoreGP(self.score_model_, k)
         return self
 
-    def _fit_scores(self, X: np.ndarray, scores: np.ndarray,
-                    warm: dict[str, Sequence[float]] | None, optimize: bool = True
-                    ) -> SingleTaskGP:
-        x = torch.as_tensor(X, dtype=DTYPE)
-        y = torch.as_tensor(scores, dtype=DTYPE)
+    @staticmethod
+    def _new_model(x: Tensor, y: Tensor) -> SingleTaskGP:
         k, d = y.shape[-1], x.shape[-1]
-        model = SingleTaskGP(
-            x, y,
+        batch = torch.Size([k] if k > 1 else [])
+        # a forward model is (nearly) deterministic: the noise may fall to 1e-8 of each
+        # score's variance (botorch's default floor of 1e-4 would blur the outputs by 1 %
+        # of their spread, many measurement sigmas near a fit); no prior pulls it up
+        likelihood = GaussianLikelihood(batch_shape=batch,
+                                        noise_constraint=GreaterThan(NOISE_FLOOR))
+        return SingleTaskGP(
+            x, y, likelihood=likelihood,
             covar_module=get_covar_module_with_dim_scaled_prior(
-                ard_num_dims=d, batch_shape=torch.Size([k] if k > 1 else []),
-                use_rbf_kernel=False),
+                ard_num_dims=d, batch_shape=batch, use_rbf_kernel=False),
             outcome_transform=Standardize(m=k),
         )
-        mll = ExactMarginalLogLikelihood(model.likelihood, model)
+
+    def _fit_scores(self, X: np.ndarray, scores: np.ndarray,
+                    warm: dict[str, Sequence[float]] | None, optimize: bool = True,
+                    subset: Any | None = None) -> SingleTaskGP:
         # deferred import: profshape.search imports this module's users, not the reverse
         from .search.surrogate import _map_objective, hyperparameters, set_hyperparameters
 
+        x = torch.as_tensor(X, dtype=DTYPE)
+        y = torch.as_tensor(scores, dtype=DTYPE)
+        model = self._new_model(x, y)
         if warm and not optimize and set_hyperparameters(model, warm):
             model.eval()
             return model
         self.optimized_ = True
+        if subset is not None:
+            idx = np.unique(np.asarray(subset, dtype=int))
+            if 2 <= idx.size < len(X):
+                sub = self._fit_scores(X[idx], scores[idx], warm, True, None)
+                if set_hyperparameters(model, hyperparameters(sub)):
+                    model.eval()
+                    return model
+        mll = ExactMarginalLogLikelihood(model.likelihood, model)
         if warm:
             default = hyperparameters(model)
             base = _map_objective(mll)
@@ -309,8 +337,8 @@ class OutputEmulator:
         """Joint posterior of the outputs at ``X`` (torch, shape ``(..., q, d)``)."""
         self._check_fitted()
         X = torch.as_tensor(X, dtype=DTYPE)
-        score_post = None if self.score_model_ is None else self.score_model_.posterior(X)
-        return OutputPosterior(score_post, self._basis_t, self._mean_t, self._resid_sd_t,
+        scores = None if self._gp is None else self._gp.predict(X)
+        return OutputPosterior(scores, self._basis_t, self._mean_t, self._resid_sd_t,
                                X.shape[:-1])
 
     def predict(self, X_unit: Any) -> tuple[np.ndarray, np.ndarray]:
@@ -346,6 +374,70 @@ class OutputEmulator:
         return EmulatorModel(self)
 
 
+_SQRT5 = 5.0**0.5
+
+
+class _ScoreGP:
+    """Exact GP prediction of the component scores with the fitted hyperparameters.
+
+    The same numbers as ``score_model_.posterior`` (botorch/gpytorch; checked in
+    the tests), computed directly (Rasmussen and Williams 2006, eq. 2.25-2.26,
+    Matern 5/2 kernel eq. 4.17) with the training Cholesky factor cached: a
+    few milliseconds per call where the general machinery takes tens.
+    """
+
+    def __init__(self, model: SingleTaskGP, k: int) -> None:
+        with torch.no_grad():
+            x = model.train_inputs[0]
+            x = x if x.dim() == 3 else x.unsqueeze(0).expand(k, *x.shape)
+            y = model.train_targets.reshape(k, -1)  # standardised scores
+            self.ls = model.covar_module.lengthscale.detach().reshape(k, 1, -1)
+            self.c = model.mean_module.constant.detach().reshape(k, 1)
+            noise = model.likelihood.noise.detach().reshape(k, 1, 1)
+            self.mu = model.outcome_transform.means.detach().reshape(k)
+            self.sd = model.outcome_transform.stdvs.detach().reshape(k)
+            self.xs = x / self.ls  # (k, n, d)
+            K = self._kernel(self.xs, self.xs) + noise * torch.eye(x.shape[-2], dtype=x.dtype)
+            self.L = torch.linalg.cholesky(K)
+            self.alpha = torch.cholesky_solve((y - self.c).unsqueeze(-1), self.L)  # (k, n, 1)
+        self.k = k
+
+    @staticmethod
+    def _kernel(a: Tensor, b: Tensor) -> Tensor:
+        d2 = (a.unsqueeze(-2) - b.unsqueeze(-3)).pow(2).sum(-1)
+        r = _SQRT5 * d2.clamp_min(1e-30).sqrt()
+        return (1.0 + r + r.pow(2) / 3.0) * torch.exp(-r)
+
+    def predict(self, X: Tensor) -> tuple[Tensor, Tensor]:
+        """Mean ``(..., q, k)`` and Cholesky factor ``(k, ..., q, q)`` of the scores."""
+        batch, q, d = X.shape[:-2], X.shape[-2], X.shape[-1]
+        xf = X.reshape(-1, d)  # (B q, d)
+        xs = xf.unsqueeze(0) / self.ls  # (k, Bq, d)
+        kx = self._kernel(xs, self.xs)  # (k, Bq, n)
+        mean = self.c + (kx @ self.alpha).squeeze(-1)  # (k, Bq)
+        v = torch.linalg.solve_triangular(self.L, kx.transpose(-1, -2), upper=False)  # (k,n,Bq)
+        n_b = xf.shape[0] // q
+        vb = v.reshape(self.k, -1, n_b, q).permute(0, 2, 1, 3)  # (k, B, n, q)
+        xb = xs.reshape(self.k, n_b, q, d)
+        prior = self._kernel(xb, xb)  # (k, B, q, q)
+        cov = prior - vb.transpose(-1, -2) @ vb
+        cov = 0.5 * (cov + cov.transpose(-1, -2))
+        sd2 = self.sd.pow(2).reshape(self.k, 1, 1, 1)
+        cov = cov * sd2
+        jitter = 1e-10 * sd2 * torch.eye(q, dtype=X.dtype)
+        eye_diag = torch.diagonal(cov, dim1=-2, dim2=-1).clamp_min(0.0)
+        if q == 1:
+            chol = eye_diag.sqrt().unsqueeze(-1)
+        else:
+            chol = torch.linalg.cholesky_ex(cov + jitter)[0]
+            bad = ~torch.isfinite(chol).all(-1).all(-1)
+            if bad.any():  # numerically indefinite: fall back to the marginal variances
+                chol = torch.where(bad[..., None, None], torch.diag_embed(eye_diag.sqrt()), chol)
+        mean = (mean * self.sd.reshape(self.k, 1) + self.mu.reshape(self.k, 1))
+        mean = mean.transpose(0, 1).reshape(*batch, q, self.k)
+        return mean, chol.reshape(self.k, *batch, q, q)
+
+
 class OutputPosterior(Posterior):
     """Posterior of emulated outputs: affine map of the score-GP posterior plus residual noise.
 
@@ -355,9 +447,9 @@ class OutputPosterior(Posterior):
     noise.
     """
 
-    def __init__(self, score_posterior: Posterior | None, basis: Tensor, mean: Tensor,
+    def __init__(self, scores: tuple[Tensor, Tensor] | None, basis: Tensor, mean: Tensor,
                  residual_sd: Tensor, batch_q_shape: torch.Size) -> None:
-        self.score_posterior = score_posterior
+        self.scores = scores
         self.basis = basis
         self.offset = mean
         self.residual_sd = residual_sd
@@ -393,27 +485,28 @@ class OutputPosterior(Posterior):
     @property
     def mean(self) -> Tensor:
         out = self.offset.expand(self._batch_q + torch.Size([self._m]))
-        if self.score_posterior is not None:
-            out = out + self.score_posterior.mean @ self.basis
+        if self.scores is not None:
+            out = out + self.scores[0] @ self.basis
         return out
 
     @property
     def variance(self) -> Tensor:
         out = (self.residual_sd**2).expand(self._batch_q + torch.Size([self._m]))
-        if self.score_posterior is not None:
-            out = out + self.score_posterior.variance.clamp_min(0.0) @ self.basis**2
+        if self.scores is not None:
+            var = self.scores[1].pow(2).sum(-1)  # (k, ..., q)
+            out = out + var.movedim(0, -1) @ self.basis**2
         return out
 
     def rsample_from_base_samples(self, sample_shape: torch.Size, base_samples: Tensor) -> Tensor:
-        sample_shape = torch.Size(sample_shape)
         k = self._k
         out = self.offset + base_samples[..., k:] * self.residual_sd
-        if self.score_posterior is not None:
-            base = base_samples[..., :k]
-            if len(self.score_posterior.base_sample_shape) == len(self._batch_q):
-                base = base[..., 0]  # one component: a single-output posterior
-            scores = self.score_posterior.rsample_from_base_samples(sample_shape, base)
-            out = out + scores @ self.basis
+        if self.scores is not None:
+            mean, chol = self.scores  # (..., q, k), (k, ..., q, q)
+            eps = base_samples[..., :k].movedim(-1, 0)  # (k, s..., ..., q)
+            n_s = eps.dim() - chol.dim() + 1
+            chol = chol.reshape(chol.shape[:1] + (1,) * n_s + chol.shape[1:])
+            draws = (chol @ eps.unsqueeze(-1)).squeeze(-1).movedim(0, -1)  # (s..., ..., q, k)
+            out = out + (mean + draws) @ self.basis
         return out
 
     def rsample(self, sample_shape: torch.Size | None = None) -> Tensor:

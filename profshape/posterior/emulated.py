@@ -61,31 +61,34 @@ def _matern52_batch(x1: np.ndarray, x2: np.ndarray, lengthscale: np.ndarray) -> 
 class _ScorePredictor:
     """Posterior mean and variance of the batched score GPs, in numpy."""
 
-    def __init__(self, model: Any) -> None:
+    def __init__(self, model: Any, k: int) -> None:
+        # a batch of k GPs (k > 1) or a single GP (k = 1), on the same inputs
         x = model.train_inputs[0].detach().cpu().numpy()
-        self.x = x[0] if x.ndim == 3 else x  # (n, d): the same inputs for every component
-        y = model.train_targets.detach().cpu().numpy()  # (k, n), standardised
-        self.lengthscale = model.covar_module.lengthscale.detach().cpu().numpy().reshape(
-            y.shape[0], -1)
-        self.constant = model.mean_module.constant.detach().cpu().numpy().reshape(-1)
-        noise = model.likelihood.noise.detach().cpu().numpy().reshape(-1)
+        self.x = x[0] if x.ndim == 3 else x  # (n, d)
+        y = model.train_targets.detach().cpu().numpy().reshape(k, -1)  # standardised
+        self.lengthscale = model.covar_module.lengthscale.detach().cpu().numpy().reshape(k, -1)
+        self.constant = np.broadcast_to(
+            model.mean_module.constant.detach().cpu().numpy().reshape(-1), (k,)).copy()
+        noise = np.broadcast_to(model.likelihood.noise.detach().cpu().numpy().reshape(-1),
+                                (k,)).copy()
         tf = model.outcome_transform
-        self.y_mean = tf.means.detach().cpu().numpy().reshape(-1)
-        self.y_std = tf.stdvs.detach().cpu().numpy().reshape(-1)
+        self.y_mean = tf.means.detach().cpu().numpy().reshape(k)
+        self.y_std = tf.stdvs.detach().cpu().numpy().reshape(k)
         k = _matern52_batch(self.x, self.x, self.lengthscale)
         k = k + noise[:, None, None] * np.eye(len(self.x))[None]
         chol = np.linalg.cholesky(k)
         resid = y - self.constant[:, None]
         self.alpha = np.stack([linalg.cho_solve((chol[c], True), resid[c])
                                for c in range(len(resid))])
-        eye = np.eye(len(self.x))
-        self.k_inv = np.stack([linalg.cho_solve((chol[c], True), eye) for c in range(len(chol))])
+        self.chol = chol
 
     def __call__(self, u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         ks = _matern52_batch(u, self.x, self.lengthscale)  # (k, q, n)
         mean = self.constant[:, None] + np.einsum("kqn,kn->kq", ks, self.alpha)
-        quad = np.einsum("kqn,kqn->kq", ks @ self.k_inv, ks)
-        var = np.maximum(1.0 - quad, 0.0)
+        # triangular solves with the cached Cholesky factor (stable for a tiny noise floor)
+        v = np.stack([linalg.solve_triangular(self.chol[c], ks[c].T, lower=True,
+                                              check_finite=False) for c in range(len(ks))])
+        var = np.maximum(1.0 - np.einsum("knq,knq->kq", v, v), 0.0)
         return ((mean * self.y_std[:, None] + self.y_mean[:, None]).T,
                 (var * self.y_std[:, None] ** 2).T)  # (q, k)
 
@@ -213,7 +216,8 @@ class EmulatorTarget:
         self.emulator = em.fit(self.x[keep], self.y[keep], scale=self.layout.scale,
                                warm_start=warm or None, optimize=optimise)
         self.n_optimised_fits += int(bool(em.optimized_))
-        self._scores = (None if em.score_model_ is None else _ScorePredictor(em.score_model_))
+        self._scores = (None if em.score_model_ is None
+                        else _ScorePredictor(em.score_model_, em.n_components_))
         self._basis = em.basis_ * em.scale_  # (k, m)
         self.n_fits += 1
 

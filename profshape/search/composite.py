@@ -18,7 +18,8 @@ estimated with quasi-Monte-Carlo samples (:class:`botorch.sampling.SobolQMCNorma
 in its numerically robust log form (:class:`botorch.acquisition.logei.qLogExpectedImprovement`,
 Ament et al. 2023) with a :class:`~botorch.acquisition.objective.GenericMCObjective`
 that evaluates :meth:`profshape.output_layout.OutputLayout.chi2` on each
-sample; ``chi2_best`` is the best chi-square actually observed. Running trials
+sample (the deviance ``-2 ln L`` when a discrepancy sigma is fitted; see
+:func:`composite_misfit`); ``chi2_best`` is the best value actually observed. Running trials
 enter as pending points (their joint samples), a batch is built greedily one
 point at a time. Once a forward run has failed, the log acquisition is added
 to the log probability of a successful run under the feasibility GP (Gardner
@@ -65,6 +66,7 @@ __all__ = [
     "EXPLORE",
     "CompositeAcquisition",
     "composite_acquisition",
+    "composite_misfit",
     "fit_emulator",
     "propose_composite",
     "stall_length",
@@ -81,11 +83,28 @@ MAX_COMPONENTS = 12
 #: Hyperparameters are re-optimised while the training set is small, then each time it has
 #: grown by a tenth since the last optimisation (in between the GPs are conditioned on the
 #: new runs with the previous hyperparameters); common practice, no source.
-FULL_REFIT_BELOW = 40
+FULL_REFIT_BELOW = 20
 REFIT_GROWTH = 1.1
+#: Beyond this many trials the hyperparameters are optimised on this many: the best half
+#: by chi-square and an evenly spread selection of the rest (then every trial is used for
+#: prediction); bounds the cost of a fit at a few seconds.
+HYPER_SUBSET = 80
 #: Minimum unit-cube distance of an "explore" proposal from the best trial, as a fraction
 #: of the cube's diagonal.
 EXPLORE_DISTANCE = 0.25
+
+
+def composite_misfit(layout: OutputLayout, Y, X):
+    """The misfit the composite strategy minimises, for outputs ``Y`` at unit-cube ``X``.
+
+    The chi-square; with a fitted discrepancy sigma (a coordinate of ``X``) the
+    deviance ``-2 ln L`` instead, since the chi-square alone falls without end as
+    the discrepancy grows.
+    """
+    disc = layout.discrepancy_from_unit(X)
+    if disc is None:
+        return layout.chi2(Y)
+    return -2.0 * layout.log_likelihood(Y, discrepancy_sigma_m_s=disc)
 
 
 def stall_length(dim: int) -> int:
@@ -114,7 +133,13 @@ def fit_emulator(u: np.ndarray, Y: np.ndarray, layout: OutputLayout, *, seed: in
     """
     em = OutputEmulator(VARIANCE_FRACTION, MAX_COMPONENTS, RESIDUAL_TOLERANCE,
                         max_fit_attempts=max_attempts, max_iter=100, seed=seed)
-    em.fit(u, Y, scale=layout.scale, warm_start=warm, optimize=refit)
+    subset = None
+    if len(u) > HYPER_SUBSET:
+        order = np.argsort(np.asarray(composite_misfit(layout, Y, u)), kind="stable")
+        best, rest = order[: HYPER_SUBSET // 2], np.sort(order[HYPER_SUBSET // 2:])
+        spread = rest[np.linspace(0, len(rest) - 1, HYPER_SUBSET - len(best)).astype(int)]
+        subset = np.concatenate([best, spread])
+    em.fit(u, Y, scale=layout.scale, warm_start=warm, optimize=refit, hyper_subset=subset)
     return em
 
 
@@ -164,8 +189,9 @@ def composite_acquisition(emulator: OutputEmulator, layout: OutputLayout, best_c
     """The composite log expected improvement (see the module docstring)."""
 
     def neg_chi2(samples: Tensor, X: Tensor | None = None) -> Tensor:
-        disc = None if X is None else layout.discrepancy_from_unit(X)
-        return -layout.chi2(samples, discrepancy_sigma_m_s=disc)
+        if X is None or layout.discrepancy_index is None:
+            return -layout.chi2(samples)
+        return -composite_misfit(layout, samples, X)
 
     pending = None
     if pending_u is not None and len(pending_u):
@@ -243,7 +269,7 @@ def propose_composite(acq: CompositeAcquisition, dim: int, q: int, *, u_ok: np.n
             cand, _ = optimize_acqf(
                 acq, bounds=torch.as_tensor(box, dtype=DTYPE), q=1, num_restarts=len(start),
                 batch_initial_conditions=torch.as_tensor(start[:, None, :], dtype=DTYPE),
-                options={"maxiter": 100},
+                options={"maxiter": 60},
             )
         chosen.append(cand.detach().numpy().reshape(dim))
     acq.set_X_pending(base_pending)

