@@ -285,10 +285,11 @@ def map_vs_best(map_coefficients: dict[str, float], map_log_likelihood: float, m
                 samples: pd.DataFrame) -> CheckOutcome:
     """Do the MAP and the best search trial agree? If not, say why.
 
-    They agree when the best trial lies within the posterior's median
-    likelihood contour of the MAP, ``2 |l_MAP - l_best| <= chi2.ppf(0.5, d)``
-    (the Laplace approximation, as in :mod:`~profshape.posterior.check`), and
-    within 2 posterior standard deviations in every coefficient. A MAP much
+    They agree when the best trial lies inside the posterior's 95 % credible
+    region around the MAP, ``2 |l_MAP - l_best| <= chi2.ppf(0.95, d)`` (the
+    Laplace approximation, as in :mod:`~profshape.posterior.check`: the best
+    trial is then a plausible posterior draw), and within 2 posterior standard
+    deviations in every coefficient. A MAP much
     better than the best trial means the search had not converged (a failure:
     the search's best is not the best fit); an equally good MAP far from it
     means a flat or ridged likelihood (explained, not a failure).
@@ -300,7 +301,7 @@ def map_vs_best(map_coefficients: dict[str, float], map_log_likelihood: float, m
     with np.errstate(divide="ignore", invalid="ignore"):
         dist = np.where(sd > 0, np.abs(diff) / sd, np.where(diff == 0, 0.0, np.inf))
     delta = float(map_log_likelihood - best_log_likelihood)
-    limit = float(0.5 * stats.chi2.ppf(0.5, d))
+    limit = float(0.5 * stats.chi2.ppf(0.95, d))
     details = {"map_source": map_source, "delta_log_likelihood_nats": delta,
                "limit_nats": limit,
                "distance_in_posterior_sd": dict(zip(names, dist.tolist(), strict=True))}
