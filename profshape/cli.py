@@ -157,6 +157,10 @@ def _print_summary(summary: dict, out: Path) -> None:
         print(f"best reduced chi-square: {best:.4g}")
     for name, value in (summary.get("best_coefficients") or {}).items():
         print(f"  {name} = {value:.6g}")
+    from .posterior.verdicts import terminal_lines
+
+    for line in terminal_lines(summary.get("checks") or []):
+        print(line)
     if summary.get("report"):
         print(f"report: {out / summary['report']}")
 

@@ -131,6 +131,8 @@ _SCHEMA: dict[str, Any] = {
         "n_refine_rounds": ((int,), False, None),
         "n_refine_draws": ((int,), False, None),
         "n_band_draws": ((int,), False, 24),
+        "forward_budget": ((int,), False, None),
+        "refine_threshold_nats": (_NUMBER, False, None),
         "band_levels": ((list,), False, [0.68, 0.95]),
         "seed": ((int,), False, None),
         "predict": "point-list",

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 __all__ = [
     "CampaignFailedError",
+    "BoundWarning",
     "ConfigError",
     "ConvergenceWarning",
     "FlatObjectiveWarning",
@@ -68,3 +69,9 @@ class ImplausibleValueWarning(ProfshapeWarning):
 
 class FolderLockedError(InputDataError):
     """Another process is writing to this output folder (the message names it)."""
+class BoundWarning(ProfshapeWarning):
+    """A best-fit coefficient sits on (within 1 % of) a bound of its search range.
+
+    The best fit may lie beyond it: widen that bound and search again (the
+    message names the coefficient, the side and the bound's value).
+    """

@@ -23,7 +23,13 @@ With per-observable weights :math:`w`,
     \chi^2_\nu = \frac{\chi^2}{n - p},
 
 summed over operating points, with :math:`n` the number of measured values
-and :math:`p` the number of fitted coefficients (0 unless given).
+and :math:`p` the number of fitted parameters. A
+:class:`~profshape.problem.CalibrationProblem` sets :math:`p` to the number of
+parameters it fits (family coefficients, per-point scales, a fitted
+discrepancy) unless :attr:`LikelihoodSettings.n_fitted` says otherwise. With
+unit weights and a model linear in its parameters, the chi-square of the best
+fit follows a chi-square law with :math:`n - p` degrees of freedom, and
+:attr:`Misfit.tail_probability` is ``scipy.stats.chi2.sf(chi2, n - p)``.
 """
 
 from __future__ import annotations
@@ -38,7 +44,7 @@ from .data import DataSet, OperatingPointData
 from .exceptions import InputDataError
 from .forward.base import Prediction
 
-__all__ = ["LikelihoodSettings", "Misfit", "evaluate_misfit"]
+__all__ = ["LikelihoodSettings", "Misfit", "evaluate_misfit", "residual_table"]
 
 _LOG_2PI = math.log(2.0 * math.pi)
 
@@ -59,15 +65,17 @@ class LikelihoodSettings:
         ``"discharge_current"``, ...) or by ``"label/observable"``; default 1.
     use_position_uncertainty : bool, default=True
         Propagate ``sigma_z_m`` through the model's local slope.
-    n_fitted : int, default=0
-        Number of fitted coefficients p in the reduced chi-square n - p.
+    n_fitted : int or None, default=None
+        Number of fitted parameters p in the degrees of freedom n - p of the
+        reduced chi-square. None: set by the calibration problem (the number of
+        parameters it fits); 0 when a misfit is computed without a problem.
     """
 
     discrepancy_sigma_m_s: float = 0.0
     scalar_discrepancy_relative: float = 0.0
     weights: Mapping[str, float] = field(default_factory=dict)
     use_position_uncertainty: bool = True
-    n_fitted: int = 0
+    n_fitted: int | None = None
 
     def __post_init__(self) -> None:
         for name in ("discrepancy_sigma_m_s", "scalar_discrepancy_relative"):
@@ -81,7 +89,9 @@ class LikelihoodSettings:
                     f"likelihood: weight for {key!r} must be a finite number >= 0; got {v!r}."
                 )
         object.__setattr__(self, "weights", w)
-        if int(self.n_fitted) != self.n_fitted or self.n_fitted < 0:
+        if self.n_fitted is not None and (
+                isinstance(self.n_fitted, bool) or not isinstance(self.n_fitted, int | float)
+                or int(self.n_fitted) != self.n_fitted or self.n_fitted < 0):
             raise InputDataError(f"likelihood: n_fitted must be an integer >= 0; got {self.n_fitted!r}.")
 
     def weight(self, label: str, observable: str) -> float:
@@ -108,7 +118,11 @@ class Misfit:
     n_data : int
         Number of measured values compared.
     reduced_chi2 : float
-        chi2 / (n_data - n_fitted).
+        chi2 / dof.
+    dof : int
+        Degrees of freedom n_data - n_fitted (at least 1).
+    n_fitted : int
+        Number of fitted parameters p used in ``dof``.
     per_point : dict of str to float
         Chi-square per operating point.
     per_observable : dict of str to float
@@ -123,6 +137,21 @@ class Misfit:
     reduced_chi2: float = math.inf
     per_point: dict[str, float] = field(default_factory=dict)
     per_observable: dict[str, float] = field(default_factory=dict)
+    dof: int = 1
+    n_fitted: int = 0
+
+    @property
+    def tail_probability(self) -> float:
+        """``P(X >= chi2)`` for X chi-square with ``dof`` degrees of freedom (scipy.stats.chi2.sf).
+
+        Below 0.001 the model (or the family) cannot match the data within
+        the stated uncertainties. NaN when the misfit is not ok.
+        """
+        if not self.ok:
+            return math.nan
+        from scipy import stats
+
+        return float(stats.chi2.sf(self.chi2, self.dof))
 
     @classmethod
     def failure(cls, reason: str, n_data: int = 0) -> Misfit:
@@ -164,6 +193,7 @@ def evaluate_misfit(
     settings: LikelihoodSettings | None = None,
     *,
     discrepancy_sigma_m_s: float | None = None,
+    n_fitted: int | None = None,
 ) -> Misfit:
     """Compare predictions with a data set.
 
@@ -175,6 +205,9 @@ def evaluate_misfit(
     settings : LikelihoodSettings, optional
     discrepancy_sigma_m_s : float, optional
         Overrides ``settings.discrepancy_sigma_m_s`` (for a fitted discrepancy).
+    n_fitted : int, optional
+        Number of fitted parameters p (degrees of freedom n - p); used when
+        ``settings.n_fitted`` is None (a problem passes its own count), else 0.
 
     Returns
     -------
@@ -228,7 +261,8 @@ def evaluate_misfit(
             loglike_total += ll
         per_point[label] = point_chi2
         chi2_total += point_chi2
-    dof = max(n_data - int(settings.n_fitted), 1)
+    p = _n_fitted(settings, n_fitted)
+    dof = max(n_data - p, 1)
     if not (math.isfinite(chi2_total) and math.isfinite(loglike_total)):
         return Misfit.failure("misfit is not finite", n_data)
     return Misfit(
@@ -239,4 +273,86 @@ def evaluate_misfit(
         reduced_chi2=chi2_total / dof,
         per_point=per_point,
         per_observable=per_observable,
+        dof=dof,
+        n_fitted=p,
     )
+
+
+def _n_fitted(settings: LikelihoodSettings, n_fitted: int | None) -> int:
+    if settings.n_fitted is not None:
+        return int(settings.n_fitted)
+    if n_fitted is None:
+        return 0
+    if isinstance(n_fitted, bool) or int(n_fitted) != n_fitted or n_fitted < 0:
+        raise InputDataError(f"likelihood: n_fitted must be an integer >= 0; got {n_fitted!r}.")
+    return int(n_fitted)
+
+
+def residual_table(
+    dataset: DataSet,
+    predictions: Mapping[str, Prediction],
+    settings: LikelihoodSettings | None = None,
+    *,
+    discrepancy_sigma_m_s: float | None = None,
+):
+    """Each measured value's contribution to the chi-square.
+
+    Parameters
+    ----------
+    dataset, predictions, settings, discrepancy_sigma_m_s
+        As for :func:`evaluate_misfit`.
+
+    Returns
+    -------
+    DataFrame
+        One row per measured value: ``label``, ``observable``, ``z_m`` (NaN
+        for scalars), ``measured``, ``model``, ``sigma_effective`` (the square
+        root of the effective variance), ``normalised_residual`` ((measured -
+        model) / sigma_effective) and ``chi2`` (weighted square of it; the rows
+        sum to :attr:`Misfit.chi2`). Operating points whose prediction failed
+        or does not cover the data are left out.
+    """
+    import pandas as pd
+
+    settings = settings or LikelihoodSettings()
+    if discrepancy_sigma_m_s is not None:
+        settings = LikelihoodSettings(
+            discrepancy_sigma_m_s=float(discrepancy_sigma_m_s),
+            scalar_discrepancy_relative=settings.scalar_discrepancy_relative,
+            weights=settings.weights,
+            use_position_uncertainty=settings.use_position_uncertainty,
+            n_fitted=settings.n_fitted,
+        )
+    rows: list[dict[str, object]] = []
+    for data in dataset:
+        label = data.label
+        pred = predictions.get(label)
+        if pred is None or not pred.ok:
+            continue
+        if data.ion_velocity is not None:
+            terms = _velocity_terms(data, pred, settings)
+            if not isinstance(terms, str):
+                residual, variance = terms
+                w = settings.weight(label, "ion_velocity")
+                meas = data.ion_velocity
+                for z, y, r, v in zip(meas.z_m, meas.velocity_m_s, residual, variance,
+                                      strict=True):
+                    rows.append({"label": label, "observable": "ion_velocity", "z_m": float(z),
+                                 "measured": float(y), "model": float(y - r),
+                                 "sigma_effective": float(np.sqrt(v)),
+                                 "normalised_residual": float(r / np.sqrt(v)),
+                                 "chi2": float(w * r * r / v)})
+        for name, obs in data.scalars.items():
+            if name not in pred.scalars:
+                continue
+            r = obs.value - float(pred.scalars[name])
+            v = obs.sigma**2 + (settings.scalar_discrepancy_relative * obs.value) ** 2
+            w = settings.weight(label, name)
+            rows.append({"label": label, "observable": name, "z_m": math.nan,
+                         "measured": float(obs.value), "model": float(pred.scalars[name]),
+                         "sigma_effective": float(math.sqrt(v)),
+                         "normalised_residual": float(r / math.sqrt(v)),
+                         "chi2": float(w * r * r / v)})
+    cols = ["label", "observable", "z_m", "measured", "model", "sigma_effective",
+            "normalised_residual", "chi2"]
+    return pd.DataFrame(rows, columns=cols)

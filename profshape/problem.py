@@ -192,6 +192,15 @@ class CalibrationProblem:
         c = self.validate(coefficients)
         return {n: float(v) for n, v in zip(self.names, c, strict=True)}
 
+    @property
+    def n_fitted(self) -> int:
+        """Fitted parameters p in the degrees of freedom n - p: all searched parameters
+        (family coefficients, per-point scales, a fitted discrepancy) unless
+        ``likelihood.n_fitted`` is set."""
+        if self.likelihood.n_fitted is not None:
+            return int(self.likelihood.n_fitted)
+        return self.dim
+
     # ------------------------------------------------------------ profiles
     def profile_for(self, coefficients: Any, label: str) -> AnomalousProfile:
         """The profile run at operating point ``label`` (with its scale, if free)."""
@@ -242,7 +251,8 @@ class CalibrationProblem:
                                 preds, c, wall_time_s)
         misfit = evaluate_misfit(self.dataset, preds, self.likelihood,
                                  discrepancy_sigma_m_s=self.discrepancy_sigma_m_s(c)
-                                 if self.fit_discrepancy else None)
+                                 if self.fit_discrepancy else None,
+                                 n_fitted=self.n_fitted)
         if not misfit.ok:
             return TrialOutcome("failed", misfit.reason, misfit, preds, c, wall_time_s)
         return TrialOutcome("ok", "", misfit, preds, c, wall_time_s)

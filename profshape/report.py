@@ -31,6 +31,8 @@ PREDICTIONS_FILE = "predictions.csv"
 SUMMARY_FILE = "summary.json"
 REPORT_FILE = "report.md"
 SEARCH_FILE = "search.json"
+CHECKS_FILE = "checks.json"
+STAGE_FILE = "stage.json"
 MIN_OK_TRIALS_FOR_POSTERIOR = 5
 
 
@@ -109,6 +111,7 @@ def finish(cal: Any, result: Any, out: Path, executor: Any = None,
                                                    executor,
                                                    "the [reference] profile, once") as ex:
             run_reference(cal, out, ex)
+    _write_checks(cal, result.trials, out)
     if notes:
         _atomic_text(out / "notes.json", json.dumps(notes, indent=2))
     with _stage_progress(cal, result).timed("report", "drawing the figures, writing summary and report"):
@@ -118,13 +121,25 @@ def finish(cal: Any, result: Any, out: Path, executor: Any = None,
     return summary
 
 
+def _write_checks(cal: Any, trials: pd.DataFrame, out: Path) -> None:
+    """Run the checks (no forward run) and save them as ``checks.json``."""
+    from .posterior import PosteriorResult
+    from .posterior.verdicts import run_checks
+
+    posterior = None
+    if (out / POSTERIOR_DIR / "posterior.json").exists():
+        posterior = PosteriorResult.load(out / POSTERIOR_DIR)
+    checks = [c.to_dict() for c in run_checks(cal.problem, trials, posterior)]
+    _atomic_text(out / CHECKS_FILE, json.dumps(_clean(checks), indent=2))
+
+
 def _posterior_products(cal: Any, result: Any, out: Path, executor: Any, notes: list[str]) -> None:
     from .posterior import PosteriorSettings, posterior_bands, predict_scalars, sample_posterior
 
     post_cfg = cal.config.section("posterior")
     seed = post_cfg["seed"] if post_cfg["seed"] is not None else cal.search_settings.seed
     keys = ("n_walkers", "n_steps", "burn_in", "thin", "n_gp_draws", "n_refine_rounds",
-            "n_refine_draws", "n_check_draws")
+            "n_refine_draws", "n_check_draws", "forward_budget", "refine_threshold_nats")
     kwargs = {k: post_cfg[k] for k in keys if post_cfg[k] is not None}
     levels = tuple(float(v) for v in post_cfg["band_levels"])
     settings = PosteriorSettings(seed=seed, band_levels=levels, **kwargs)
@@ -132,15 +147,16 @@ def _posterior_products(cal: Any, result: Any, out: Path, executor: Any, notes: 
     n_draws = int(post_cfg["n_band_draws"])
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", ProfshapeWarning)
-        n_post = settings.n_refine_rounds * settings.n_refine_draws + 1 + settings.n_check_draws
+        n_post = settings.forward_budget  # the posterior stage's own forward-run budget
         with stages.executor("posterior", n_post, executor,
                              "sampling on the surrogate, refinement and check runs") as ex:
             posterior = sample_posterior(cal.problem, result.trials, settings, executor=ex)
         posterior.save(out / POSTERIOR_DIR)
         with stages.executor("bands", n_draws + 1, executor, "posterior draws") as ex:
             bands = posterior_bands(cal.problem, posterior, levels=levels, n_draws=n_draws,
-                                    executor=ex, seed=seed)
+                                    executor=ex, seed=seed, reuse_runs=True)
         bands.save(out / BANDS_DIR)
+        _save_stage(cal, posterior, bands, levels, seed, out)
         tables = [bands.scalars.assign(in_data=True, extrapolation=False, extrapolation_reason="")]
         if cal.prediction_points:
             with stages.executor("predictions",
@@ -161,6 +177,31 @@ def _stage_progress(cal: Any, result: Any) -> Any:
     settings = getattr(cal, "search_settings", None)
     return StageProgress(result.trials, getattr(settings, "workers", 1),
                          bool(getattr(settings, "progress", False)))
+
+
+def _save_stage(cal: Any, posterior: Any, bands: Any, levels: tuple[float, ...], seed: Any,
+                out: Path) -> None:
+    """Emulated bands and what the posterior stage spent (``posterior/stage.json``)."""
+    from .posterior.bands import emulated_bands
+
+    emulated = emulated_bands(posterior, levels, seed=seed)
+    if len(emulated):
+        emulated.to_parquet(out / BANDS_DIR / "bands_emulated.parquet", index=False)
+    n_pred = len(cal.prediction_points) * (max(int(cal.config.section("posterior")["n_band_draws"]),
+                                               1) + 1)
+    spent = dict(posterior.diagnostics.get("forward_runs_by_use", {}))
+    spent["bands"] = int(bands.extra.get("n_new_runs", 0))
+    spent["predictions"] = n_pred
+    stage = {"forward_runs": {**spent, "total": sum(spent.values())},
+             "forward_budget": posterior.diagnostics.get("forward_budget"),
+             "emulated_bands": None if not len(emulated) else {
+                 "file": f"{BANDS_DIR}/bands_emulated.parquet",
+                 "n_draws": emulated.attrs.get("n_draws"),
+                 "stable": emulated.attrs.get("stable"),
+                 "n_real_runs_compared": int(emulated["n_real"].iloc[0]),
+                 **{f"real_inside_{lev:g}_mean": float(emulated[f"real_inside_{lev:g}"].mean())
+                    for lev in levels}}}
+    _atomic_text(out / POSTERIOR_DIR / STAGE_FILE, json.dumps(_clean(stage), indent=2))
 
 
 # ------------------------------------------------------------------ outputs
@@ -207,6 +248,9 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
     from .reference import load_reference_result
 
     reference = load_reference_result(out)
+    checks = json.loads((out / CHECKS_FILE).read_text()) if (out / CHECKS_FILE).exists() else []
+    stage_path = out / POSTERIOR_DIR / STAGE_FILE
+    stage = json.loads(stage_path.read_text()) if stage_path.exists() else {}
     figures = _figures(out, cal, trials, posterior, bands, reference)
     summary: dict[str, Any] = {
         "profshape_version": __version__,
@@ -227,6 +271,9 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
         "predictions": [] if predictions is None else _clean(predictions.to_dict("records")),
         "figures": figures,
         "notes": notes,
+        "best_fit": _best_fit(trials, posterior, names),
+        "checks": checks,
+        "checks_passed": bool(checks) and all(c["passed"] for c in checks),
         "report": REPORT_FILE,
         "reference": _reference_summary(reference, trials, best_trial),
     }
@@ -238,6 +285,11 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
             "diagnostics": _clean(posterior.diagnostics),
             "check": None if posterior.check is None else _clean(posterior.check.summary()),
             "samples_file": f"{POSTERIOR_DIR}/posterior_samples.parquet",
+            "effective_sample_size": posterior.diagnostics.get("effective_sample_size_total"),
+            "autocorr_time_steps": posterior.diagnostics.get("autocorr_time_steps"),
+            "forward_runs": stage.get("forward_runs"),
+            "forward_budget": stage.get("forward_budget"),
+            "emulated_bands": stage.get("emulated_bands"),
         }
     if bands is not None:
         summary["bands_files"] = {name: f"{BANDS_DIR}/bands_{name}.parquet"
@@ -252,6 +304,12 @@ def _reference_summary(reference: Any, trials: pd.DataFrame, best_trial: Any) ->
     from .reference import reference_summary
 
     return reference_summary(reference, trials, best_trial)
+
+
+def _best_fit(trials: pd.DataFrame, posterior: Any, names: tuple[str, ...]) -> Any:
+    from .posterior.verdicts import best_fit
+
+    return best_fit(trials, posterior, names)
 
 
 def _get(cal: Any, key: str) -> Any:
@@ -370,6 +428,20 @@ def _fmt(x: Any, digits: int = 4) -> str:
     return f"{v:.{digits}g}"
 
 
+def _best_fit_line(fit: Any) -> list[str]:
+    if not fit or fit.get("source") == "trial":
+        return []
+    coeffs = ", ".join(f"{k} = {_fmt(v, 5)}" for k, v in fit["coefficients"].items())
+    return [f"- Best fit of all real runs ({fit['source']}): reduced chi-square "
+            f"{_fmt(fit['reduced_chi2'])}; {coeffs}"]
+
+
+def _checks_section(checks: list[dict[str, Any]]) -> list[str]:
+    from .posterior.verdicts import checks_markdown
+
+    return checks_markdown(checks)
+
+
 def _report_markdown(summary: dict[str, Any], posterior: Any, bands: Any,
                      predictions: pd.DataFrame | None, trials: pd.DataFrame) -> str:
     lines = [f"# Calibration report: {summary.get('title') or 'profshape calibration'}", ""]
@@ -379,8 +451,10 @@ def _report_markdown(summary: dict[str, Any], posterior: Any, bands: Any,
         f"{summary['stop_reason']}",
         f"- Best reduced chi-square: {_fmt(summary['best_reduced_chi2'])} (trial "
         f"{summary['best_trial']}); 1 is the noise floor.",
+        *_best_fit_line(summary.get("best_fit")),
         f"- profshape {summary['profshape_version']}",
         "",
+        *_checks_section(summary.get("checks") or []),
         "## Best fit",
         "",
         "| coefficient | best trial | posterior median | 68 % interval |",
@@ -402,7 +476,14 @@ def _report_markdown(summary: dict[str, Any], posterior: Any, bands: Any,
                   f"Sampled on the Gaussian-process surrogate of the log-likelihood "
                   f"(method: {d.get('method', 'n/a')}); MAP from {posterior.map_source}.",
                   f"Acceptance fraction: {_fmt(d.get('acceptance_fraction'))}; "
-                  f"minimum effective sample size: {_fmt(d.get('min_effective_sample_size'))}."]
+                  f"integrated autocorrelation time: {_fmt(d.get('autocorr_time_steps'))} steps; "
+                  f"effective sample size: {_fmt(d.get('effective_sample_size_total'))} "
+                  "(n_walkers x kept steps / tau, summed over ensembles)."]
+        spent = (summary.get("posterior") or {}).get("forward_runs")
+        if spent:
+            lines.append("Forward runs of the posterior stage: " + ", ".join(
+                f"{k} {v}" for k, v in spent.items())
+                + f" (sampling budget {(summary.get('posterior') or {}).get('forward_budget')}).")
         if posterior.check is not None:
             c = posterior.check.summary()
             lines.append("Posterior predictive check (real forward runs of posterior draws): "

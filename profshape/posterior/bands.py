@@ -23,7 +23,22 @@ from ._evaluate import DrawRun, evaluate_many
 from .result import PosteriorResult
 from .settings import check_levels
 
-__all__ = ["PosteriorBands", "band_columns", "posterior_bands", "profile_band", "quantile_band"]
+__all__ = [
+    "PosteriorBands",
+    "band_columns",
+    "emulated_bands",
+    "posterior_bands",
+    "profile_band",
+    "quantile_band",
+]
+
+#: Emulator draws start at this many and double until the band's quantiles are stable.
+EMULATED_DRAWS_START = 1000
+#: Most emulator draws.
+EMULATED_DRAWS_MAX = 32000
+#: The quantiles are stable when doubling the draws moves none of them by more than
+#: this fraction of the widest band's width (common practice, no source).
+QUANTILE_STABILITY = 0.02
 
 
 def band_columns(levels: Sequence[float]) -> list[str]:
@@ -280,6 +295,7 @@ def posterior_bands(
     n_profile_draws: int = 1000,
     seed: int | None = 0,
     magnetic_field_T: Callable[[np.ndarray, Any], np.ndarray] | None = None,
+    reuse_runs: bool = False,
 ) -> PosteriorBands:
     """Bands of the profile, the ion velocity and the scalar outputs.
 
@@ -307,6 +323,12 @@ def posterior_bands(
         model's ``device.magnetic_field`` (times the point's field scale) when
         there is one, as with the built-in solver; otherwise a Bohm-type
         profile band is of the coefficient [-].
+    reuse_runs : bool, default=False
+        Count the posterior's own forward runs of posterior draws (the
+        predictive check) and of the MAP among the ``n_draws`` (they are draws
+        from the same posterior), so only the rest are run here. Only for the
+        problem the posterior was sampled on (its runs are of that model).
+        ``extra["n_new_runs"]`` says how many were.
 
     Returns
     -------
@@ -328,10 +350,20 @@ def posterior_bands(
     prof_c = posterior.draw(min(int(n_profile_draws), len(posterior.samples)),
                             seed=int(rng.integers(2**31)))
     profile = _profile_frames(problem, prof_c, map_c, z, levels_t, magnetic_field_T)
-    coeffs = posterior.draw(int(n_draws), seed=int(rng.integers(2**31))) if n_draws else \
+    old_c, old_runs, old_map = (_reused_runs(problem, posterior) if reuse_runs
+                                else (np.zeros((0, len(map_c))), [], None))
+    old_c, old_runs = old_c[: int(n_draws)], old_runs[: int(n_draws)]
+    n_new = int(n_draws) - len(old_runs)
+    coeffs = posterior.draw(n_new, seed=int(rng.integers(2**31))) if n_new else \
         np.zeros((0, len(map_c)))
-    runs = evaluate_many(problem, np.vstack([map_c[None, :], coeffs]), executor)
-    map_run, draw_runs = runs[0], runs[1:]
+    todo = coeffs if old_map is not None else np.vstack([map_c[None, :], coeffs])
+    runs = evaluate_many(problem, todo, executor) if len(todo) else []
+    if old_map is None:
+        map_run, runs = runs[0], runs[1:]
+    else:
+        map_run = old_map
+    draw_runs = list(old_runs) + list(runs)
+    coeffs = np.vstack([old_c, coeffs])
     measured = {d.label: dict(d.scalars) for d in problem.dataset}
     velocity = _velocity_frame(problem, draw_runs, map_run, levels_t)
     scalars = scalar_table(problem.dataset.labels, draw_runs, levels_t, map_run, measured)
@@ -348,5 +380,117 @@ def posterior_bands(
     return PosteriorBands(
         levels=levels_t, profile=profile, ion_velocity=velocity, scalars=scalars, draws=draws,
         n_draws=len(draw_runs), n_ok=n_ok, n_failed=len(draw_runs) - n_ok,
-        extra={"map_status": map_run.status, "map_reason": map_run.reason},
+        extra={"map_status": map_run.status, "map_reason": map_run.reason,
+               "n_new_runs": len(todo), "n_reused_runs": len(old_runs) + (old_map is not None)},
     )
+
+
+def _reused_runs(problem: Any, posterior: PosteriorResult) -> tuple[np.ndarray, list, Any]:
+    """The posterior's check runs (draws) and MAP run, as DrawRuns, from its forward-run log."""
+    from .emulated import predictions_from_json
+
+    frame = getattr(posterior, "forward_runs", None)
+    names = list(problem.names)
+    if frame is None or not len(frame) or "source" not in frame.columns:
+        return np.zeros((0, len(names))), [], None
+
+    def as_run(row: pd.Series) -> DrawRun:
+        ok = row["status"] == "ok"
+        return DrawRun(status=str(row["status"]), reason=str(row.get("error", "") or ""),
+                       log_likelihood=float(row["log_likelihood"]) if ok else -math.inf,
+                       reduced_chi2=float(row["reduced_chi2"]) if ok else math.inf,
+                       predictions=predictions_from_json(row.get("predictions")) if ok else {})
+
+    chk = frame[frame["source"] == "posterior_check"]
+    runs = [as_run(r) for _, r in chk.iterrows()]
+    coeffs = chk[names].to_numpy(dtype=float) if len(chk) else np.zeros((0, len(names)))
+    map_run = None
+    mp = frame[frame["source"] == "posterior_map"]
+    if len(mp):
+        row = mp.iloc[-1]
+        if np.allclose(row[names].to_numpy(dtype=float), posterior.map_vector, rtol=0,
+                       atol=1e-12 * (1 + np.abs(posterior.map_vector).max())):
+            map_run = as_run(row)
+    return coeffs, runs, map_run
+
+
+def emulated_bands(
+    posterior: PosteriorResult,
+    levels: Sequence[float] = (0.68, 0.95),
+    *,
+    seed: int | None = 0,
+) -> pd.DataFrame:
+    """Bands of the emulated outputs (ion velocity at the measured positions, measured scalars).
+
+    Each draw takes a posterior sample and a draw of each output from the
+    emulator's marginal predictive distribution there (so the emulator's own
+    uncertainty is in the band; pointwise bands need the marginals only). Draws start at
+    :data:`EMULATED_DRAWS_START` and double until no quantile moves by more
+    than :data:`QUANTILE_STABILITY` of the widest band's width. The
+    posterior's real-model check runs are compared with the bands: column
+    ``real_inside_<level>`` is the fraction of them inside each band.
+
+    Returns
+    -------
+    DataFrame
+        One row per output: ``label``, ``observable``, ``z_m`` (NaN for
+        scalars), ``measured``, ``median``, ``lower_<level>``, ``upper_<level>``,
+        ``real_inside_<level>``, ``n_real``; ``attrs["n_draws"]`` and
+        ``attrs["stable"]`` tell how many draws and whether the quantiles settled.
+        Empty when the posterior was not sampled on the emulator.
+    """
+    from .emulated import predictions_from_json
+
+    target = getattr(posterior, "surrogate", None)
+    if getattr(target, "kind", "") != "emulator":
+        return pd.DataFrame()
+    levels_t = check_levels(levels, "levels")
+    layout = target.layout
+    nv = layout.n_values
+    rng = np.random.default_rng(seed)
+    unit = posterior.unit_samples
+
+    def draw(n: int) -> np.ndarray:
+        # pointwise bands need each output's marginal only: y_j ~ N(m_j(theta), v_j(theta))
+        u = unit[rng.integers(0, len(unit), size=n)]
+        out = []
+        for chunk in np.array_split(u, max(1, n // 2000)):
+            m, v = target.outputs(chunk)
+            out.append(m[:, :nv] + np.sqrt(v[:, :nv]) * rng.standard_normal((len(chunk), nv)))
+        return np.vstack(out)
+
+    values = draw(EMULATED_DRAWS_START)
+    stable = False
+    while True:
+        qs = [(1 - lev) / 2 for lev in levels_t] + [(1 + lev) / 2 for lev in levels_t]
+        q_old = np.quantile(values, qs, axis=0)
+        if len(values) * 2 > EMULATED_DRAWS_MAX:
+            break
+        values = np.vstack([values, draw(len(values))])
+        q_new = np.quantile(values, qs, axis=0)
+        width = q_new[-1] - q_new[len(levels_t) - 1]  # widest band
+        if np.all(np.abs(q_new - q_old) <= QUANTILE_STABILITY * np.maximum(width, 1e-300)):
+            stable = True
+            break
+    band = quantile_band(values, levels_t)
+    cols = layout.columns[:nv]
+    frame = pd.DataFrame({"label": [c.label for c in cols],
+                          "observable": [c.observable for c in cols],
+                          "z_m": [c.z_m for c in cols], "measured": layout.observed, **band})
+    real = []
+    chk = posterior.forward_runs
+    if len(chk) and "source" in chk.columns:
+        for _, row in chk[(chk["source"] == "posterior_check") & (chk["status"] == "ok")].iterrows():
+            try:
+                real.append(layout.vector(predictions_from_json(row["predictions"]))[:nv])
+            except Exception:  # a run without the measured outputs is not comparable
+                continue
+    real_arr = np.array(real) if real else np.zeros((0, nv))
+    for lev in levels_t:
+        lo, hi = frame[f"lower_{lev:g}"].to_numpy(), frame[f"upper_{lev:g}"].to_numpy()
+        inside = (real_arr >= lo) & (real_arr <= hi)
+        frame[f"real_inside_{lev:g}"] = inside.mean(axis=0) if len(real_arr) else math.nan
+    frame["n_real"] = len(real_arr)
+    frame.attrs["n_draws"] = len(values)
+    frame.attrs["stable"] = bool(stable)
+    return frame

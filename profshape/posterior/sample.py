@@ -2,21 +2,29 @@
 
 How the surrogate's own uncertainty is accounted for
 ----------------------------------------------------
-With ``method="surrogate"`` the log-likelihood is replaced by a GP fitted to
-the trials. Two mechanisms keep the GP's error out of the answer:
+With ``method="surrogate"`` the forward model is replaced by a surrogate fitted
+to the trials:
 
-1. *Sampling GP realisations.* The posterior is sampled separately on
-   ``n_gp_draws`` posterior function samples of the GP (pathwise conditioning,
-   see :mod:`~profshape.posterior.surrogate`) and the chains are pooled. The
-   pooled sample targets the posterior averaged over the surrogate's
-   uncertainty, so where the GP is unsure the sample spreads accordingly.
-2. *Refinement where the mass sits.* Each of up to ``n_refine_rounds``
-   rounds runs ``n_refine_draws`` posterior draws through the real forward
-   model, adds them to the GP's training set, refits and samples again: the
-   surrogate becomes exact where the posterior mass is, and spurious modes in
-   unexplored regions are visited and removed. With
-   ``refine_until_agreement`` the rounds stop as soon as a round's runs agree
-   with the surrogate (the same test as the predictive check).
+- ``surrogate_of="outputs"`` (default): the output emulator
+  (:mod:`~profshape.posterior.emulated`); its predictive variance is added to
+  the data variance in the likelihood (Kennedy and O'Hagan 2001; Higdon et al.
+  2008), so the sampler's target is deterministic and honest about the
+  emulator;
+- ``surrogate_of="log_likelihood"``: a GP of the log-likelihood; the posterior
+  is sampled on ``n_gp_draws`` GP realisations (pathwise conditioning, see
+  :mod:`~profshape.posterior.surrogate`) and pooled.
+
+Several modes: walker ensembles start in distinct basins of the target
+(:mod:`~profshape.posterior.basins`) and are pooled with Laplace weights.
+
+Refinement where the mass sits: each round a short scout run places draws; the
+surrogate's stated error of the log-likelihood is measured there, and, until
+its 90 % quantile is below ``refine_threshold_nats`` and the last real runs
+agreed with it, ``n_refine_draws`` draws (half where the surrogate is least
+sure) are run through the real model and the surrogate is refitted
+(warm-started, capped). The stage never makes more than ``forward_budget``
+forward runs and reports what it spent on what. The final chains stop on the
+autocorrelation criterion (:func:`~profshape.posterior.sampler.run_ensemble`).
 
 Finally ``n_check_draws`` fresh draws are run through the forward model and
 compared with the surrogate (:mod:`~profshape.posterior.check`).
@@ -29,14 +37,15 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy import optimize
 
 from ..exceptions import InputDataError
 from ._evaluate import DrawRun, evaluate_many, runs_to_frame
+from .basins import find_basins, pool_by_basin
 from .check import judge_check
 from .result import PosteriorResult
 from .sampler import combine_diagnostics, run_ensemble
@@ -113,27 +122,76 @@ def _starts(u_pool: np.ndarray, score: np.ndarray, n: int, rng: np.random.Genera
     return np.clip(picks + jitter, 1e-6, 1 - 1e-6)
 
 
-def _sample_surrogate(
-    surrogate: LogLikelihoodSurrogate,
+class _SurrogateTarget:
+    """The log-likelihood GP as the sampler's target (GP realisations or its mean)."""
+
+    kind = "surrogate"
+
+    def __init__(self, settings: PosteriorSettings) -> None:
+        self.settings = settings
+        self.surrogate: LogLikelihoodSurrogate | None = None
+        self.n_fits = 0
+
+    def fit(self, u: np.ndarray, ll: np.ndarray) -> None:
+        s = self.settings
+        self.surrogate = fit_log_likelihood_surrogate(
+            u, ll, floor_nats=s.log_likelihood_floor_nats, max_trials=s.max_gp_trials,
+            seed=s.seed, warm_start=self.surrogate,
+            max_iter=None if self.surrogate is None else _REFIT_MAX_ITER,
+        )
+        self.n_fits += 1
+
+    def mean(self, u: np.ndarray) -> np.ndarray:
+        assert self.surrogate is not None
+        return self.surrogate.mean(u)
+
+    def predict(self, u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Mean and stated error [nats] of the log-likelihood of a new forward run."""
+        assert self.surrogate is not None
+        return self.surrogate.predict(u, include_noise=True)
+
+    def add(self, u: np.ndarray, runs: list[DrawRun]) -> None:
+        """New forward runs (the log-likelihoods reach :meth:`fit` with the training set)."""
+
+    def targets(self, n: int, rng: np.random.Generator) -> tuple[list, list[int]]:
+        assert self.surrogate is not None
+        if self.settings.n_gp_draws == 0:
+            return [self.surrogate.mean] * n, [-1] * n
+        k = self.settings.n_gp_draws
+        paths = self.surrogate.draw_realisations(k, self.settings.n_features,
+                                                 seed=int(rng.integers(2**31)))
+        return paths, list(range(k))
+
+
+#: Steps after burn-in of the short scout runs that choose refinement points
+#: (common practice, no source: enough to place draws, not to summarise them).
+_SCOUT_STEPS = 200
+
+#: Most L-BFGS iterations of a warm-started refit of the posterior GP (common
+#: practice, no source: a refit after a few new points moves the
+#: hyper-parameters little).
+_REFIT_MAX_ITER = 60
+
+
+def _sample_target(
+    target: Any,
     lp_u: Callable[[np.ndarray], np.ndarray],
     settings: PosteriorSettings,
+    basins: list[tuple[np.ndarray, float]],
     u_start_pool: np.ndarray,
     start_score: np.ndarray,
     rng: np.random.Generator,
     names: list[str],
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, dict[str, Any]]:
-    targets: list[Callable[[np.ndarray], np.ndarray]]
-    if settings.n_gp_draws == 0:
-        targets = [surrogate.mean]
-        labels = [-1]
-    else:
-        targets = surrogate.draw_realisations(
-            settings.n_gp_draws, settings.n_features, seed=int(rng.integers(2**31))
-        )
-        labels = list(range(settings.n_gp_draws))
-    samples, logp, real, diags = [], [], [], []
-    for target, lab in zip(targets, labels, strict=True):
-        def log_prob(u: np.ndarray, f=target) -> np.ndarray:
+    """One ensemble per target function (GP realisation) or per basin, pooled by weight."""
+    if target.kind == "surrogate" and settings.n_gp_draws:
+        n_ens = settings.n_gp_draws  # one ensemble per GP realisation
+    else:  # one deterministic target: one ensemble per distinct basin
+        n_ens = max(1, min(settings.n_ensembles, len(basins)))
+    functions, labels = target.targets(n_ens, rng)
+    samples, logp, diags = [], [], []
+    for e, f in enumerate(functions):
+        def log_prob(u: np.ndarray, f=f) -> np.ndarray:
             prior = lp_u(u)
             out = np.full(u.shape[0], -np.inf)
             fin = np.isfinite(prior)
@@ -141,27 +199,45 @@ def _sample_surrogate(
                 out[fin] = f(u[fin]) + prior[fin]
             return out
 
-        p0 = _starts(u_start_pool, start_score, settings.n_walkers, rng)
+        if basins:
+            centre = basins[e % len(basins)][0]
+            p0 = _starts_near(centre, u_start_pool, start_score, settings.n_walkers, rng,
+                              log_prob)
+        else:
+            p0 = _starts(u_start_pool, start_score, settings.n_walkers, rng)
         run = run_ensemble(log_prob, p0, n_steps=settings.n_steps, burn_in=settings.burn_in,
-                           thin=settings.thin, seed=int(rng.integers(2**31)))
+                           thin=settings.thin, seed=int(rng.integers(2**31)),
+                           stop_on_autocorr=settings.stop_on_autocorr)
         samples.append(run.samples)
         logp.append(run.log_prob)
-        real.append(np.full(len(run.log_prob), lab))
         diags.append(run.diagnostics)
     diag = combine_diagnostics(diags, names, warn=False)
-    return np.concatenate(samples), np.concatenate(logp), np.concatenate(real), diag
+    index, _group, info = pool_by_basin(samples, logp, rng)
+    diag["basins"] = info
+    diag["n_basins_started"] = len(basins)
+    u = np.vstack([samples[e][r] for e, r in index]) if len(index) else np.zeros((0, len(names)))
+    lp = np.array([logp[e][r] for e, r in index])
+    real = np.array([labels[e] for e, _ in index], dtype=int)
+    return u, lp, real, diag
 
 
-def _disagree_fraction(
-    surrogate: LogLikelihoodSurrogate, u: np.ndarray, ll: np.ndarray,
-    settings: PosteriorSettings,
-) -> float:
-    """Fraction of forward runs more than 3 sigma from the surrogate (as in the check)."""
-    if len(ll) == 0:
-        return 1.0
-    mean, std = surrogate.predict(u, include_noise=True)
-    z = (ll - mean) / np.sqrt(std**2 + settings.check_tolerance_nats**2)
-    return float(np.mean(np.abs(z) > 3.0))
+def _starts_near(centre: np.ndarray, pool_u: np.ndarray, pool_score: np.ndarray, n: int,
+                 rng: np.random.Generator, log_prob: Callable[[np.ndarray], np.ndarray]
+                 ) -> np.ndarray:
+    """``n`` walker starts in a small ball around ``centre`` with finite density."""
+    d = len(centre)
+    # spread: the distance to the nearest pool point, so the ball stays in the basin
+    dist = np.sqrt(np.sum((pool_u - centre) ** 2, axis=1))
+    scale = float(np.clip(np.median(np.sort(dist)[: max(d + 1, 2)]), 1e-3, 0.05))
+    p0 = np.clip(centre + 0.1 * scale * rng.standard_normal((n, d)), 1e-6, 1 - 1e-6)
+    bad = ~np.isfinite(log_prob(p0))
+    if bad.any():
+        p0[bad] = _starts(pool_u, pool_score, int(bad.sum()), rng)
+    return p0
+
+
+def _stated_error(target: Any, u: np.ndarray) -> np.ndarray:
+    return target.predict(u)[1]
 
 
 def _check_dims(problem: Any, settings: PosteriorSettings) -> None:
@@ -216,9 +292,9 @@ def sample_posterior(
 
     Notes
     -----
-    Forward runs made: at most ``n_refine_rounds * n_refine_draws + 1 + n_check_draws``
-    with the surrogate method (each runs every operating point);
-    ``n_walkers * (n_steps + 1) + n_check_draws`` with the exact method.
+    Forward runs made: at most ``forward_budget`` with the surrogate method (each
+    runs every operating point; ``diagnostics["forward_runs_by_use"]`` says on
+    what); ``n_walkers * (n_steps + 1)`` more with the exact method.
     """
     settings = settings or PosteriorSettings()
     if not isinstance(settings, PosteriorSettings):
@@ -240,16 +316,19 @@ def sample_posterior(
     n_forward = 0
     surrogate: LogLikelihoodSurrogate | None = None
     refine_log: list[dict[str, Any]] = []
+    budget = _Budget(settings)
 
     def evaluate(u: np.ndarray, source: str) -> list[DrawRun]:
         nonlocal n_forward
         coeffs = np.asarray(problem.from_unit(np.clip(u, 0.0, 1.0)), dtype=float)
         runs = evaluate_many(problem, coeffs, executor)
         n_forward += len(runs)
+        budget.spend(source, len(runs))
         runs_frames.append(runs_to_frame(problem, coeffs, runs, source, settings.seed))
         return runs
 
     start_score = ll_all + lp_u(u_all)
+    target: Any = None
     if settings.method == "exact":
         def exact_log_prob(u: np.ndarray) -> np.ndarray:
             nonlocal n_forward
@@ -271,74 +350,35 @@ def sample_posterior(
         realisation = np.full(len(log_post), -1)
         diag = combine_diagnostics([run.diagnostics], names, warn=False)
     else:
-        u_train, ll_train = u_all, ll_all
-        pool_u, pool_score = u_all, start_score
-        for round_ in range(settings.n_refine_rounds + 1):
-            surrogate = fit_log_likelihood_surrogate(
-                u_train, ll_train, floor_nats=settings.log_likelihood_floor_nats,
-                max_trials=settings.max_gp_trials, seed=settings.seed,
-            )
-            unit_samples, log_post, realisation, diag = _sample_surrogate(
-                surrogate, lp_u, settings, pool_u, pool_score, rng, names
-            )
-            if round_ == settings.n_refine_rounds:
-                break
-            pick = rng.choice(len(unit_samples), size=settings.n_refine_draws, replace=False)
-            runs = evaluate(unit_samples[pick], f"posterior_refine_{round_ + 1}")
-            good = np.array([r.ok for r in runs], dtype=bool)
-            new_ll = np.array([r.log_likelihood for r in runs])[good]
-            disagree = _disagree_fraction(surrogate, unit_samples[pick][good], new_ll, settings)
-            failed = float(1.0 - good.mean()) if len(good) else 1.0
-            refine_log.append({"round": round_ + 1, "n_runs": len(runs), "n_ok": int(good.sum()),
-                               "disagree_fraction": disagree, "failed_fraction": failed})
-            u_train = np.vstack([u_train, unit_samples[pick][good]])
-            ll_train = np.concatenate([ll_train, new_ll])
-            # restart the next round's walkers from the best real points seen
-            pool_u = u_train
-            pool_score = ll_train + lp_u(u_train)
-            if settings.refine_until_agreement and (
-                disagree <= settings.check_max_disagree_fraction
-                and failed <= settings.check_max_failed_fraction
-            ):
-                break  # the surrogate already matches the real model where the mass sits
-        u_all = u_train
-        ll_all = ll_train
-
-    # ----- MAP: optimise the surrogate mean (or take the chain's best), verify with a real run
-    lp_total_all = ll_all + lp_u(u_all)
-    best_i = int(np.argmax(lp_total_all))
-    best_u, best_ll, best_score = u_all[best_i], float(ll_all[best_i]), float(lp_total_all[best_i])
-    map_u, map_ll, map_source = best_u, best_ll, "best_trial"
-    if surrogate is not None:
-        def neg(u: np.ndarray) -> float:
-            v = float(surrogate.mean(u[None, :])[0] + lp_u(u[None, :])[0])
-            return -v if math.isfinite(v) else 1e300
-
-        starts = [u_all[i] for i in np.argsort(-lp_total_all)[:5]]
-        starts.append(unit_samples[int(np.argmax(log_post))])
-        cands = [optimize.minimize(neg, s, method="L-BFGS-B", bounds=[(0.0, 1.0)] * d)
-                 for s in starts]
-        cand_u = min(cands, key=lambda r: r.fun).x
-        cand_source = "surrogate_optimum"
-    else:
-        cand_u = unit_samples[int(np.argmax(log_post))]
-        cand_source = "chain"
-    cand_run = evaluate(cand_u[None, :], "posterior_map")[0]
-    if cand_run.ok:
-        cand_score = cand_run.log_likelihood + float(lp_u(cand_u[None, :])[0])
-        if cand_score >= best_score:
-            map_u, map_ll, map_source = cand_u, cand_run.log_likelihood, cand_source
+        target = _make_target(problem, trials, settings)
+        unit_samples, log_post, realisation, diag, map_u, map_ll, map_source, u_all, ll_all = \
+            _refine_and_sample(target, problem, settings, u_all, ll_all, lp_u, rng, names,
+                               evaluate, refine_log, budget)
+        surrogate = getattr(target, "surrogate", None)
+        if target.kind == "emulator":
+            surrogate = target  # kept on the result for emulated bands
+        diag["target"] = target.kind
+        if target.kind == "emulator":
+            diag["emulator"] = target.info()
+        elif settings.surrogate_of == "outputs":
+            diag.setdefault("warnings", []).append(
+                "the trial log holds no usable predictions; sampled on the log-likelihood GP "
+                "instead of the output emulator")
+    if settings.method == "exact":
+        map_u, map_ll, map_source = _map_exact(u_all, ll_all, lp_u, unit_samples, log_post,
+                                               evaluate if budget.left() > budget.n_check else None)
     map_c = np.asarray(problem.from_unit(map_u), dtype=float)
+    best_ll = float(np.max(ll_all))
 
     # ----- posterior predictive check
     check = None
-    if settings.n_check_draws > 0:
-        n_chk = min(settings.n_check_draws, len(unit_samples))
+    n_chk = min(settings.n_check_draws, len(unit_samples), budget.left())
+    if n_chk > 0:
         pick = rng.choice(len(unit_samples), size=n_chk, replace=False)
         u_chk = unit_samples[pick]
         runs = evaluate(u_chk, "posterior_check")
-        if surrogate is not None:
-            mean, std = surrogate.predict(u_chk, include_noise=True)
+        if target is not None:
+            mean, std = target.predict(u_chk)
         else:
             mean = log_post[pick] - lp_u(u_chk)
             std = np.zeros(n_chk)
@@ -351,6 +391,8 @@ def sample_posterior(
             "predicted_std": std,
             "log_likelihood": [r.log_likelihood if r.ok else math.nan for r in runs],
             "reduced_chi2": [r.reduced_chi2 if r.ok else math.nan for r in runs],
+            "chi2": [r.chi2 if r.ok else math.nan for r in runs],
+            "log_prior": lp_u(u_chk),
         })
         for j, name in enumerate(names):
             table[name] = coeffs[:, j]
@@ -360,6 +402,7 @@ def sample_posterior(
             tolerance_nats=settings.check_tolerance_nats,
             max_disagree_fraction=settings.check_max_disagree_fraction,
             max_failed_fraction=settings.check_max_failed_fraction,
+            n_parameters=d, best_log_prior=float(lp_u(map_u[None, :])[0]),
         )
 
     _warn_diagnostics(diag)
@@ -367,7 +410,13 @@ def sample_posterior(
     diag["n_forward_runs"] = n_forward
     diag["n_gp_trials"] = len(ll_all)
     diag["refinement"] = refine_log
-    if surrogate is not None:
+    diag["forward_budget"] = settings.forward_budget
+    diag["forward_runs_by_use"] = dict(budget.spent)
+    if settings.n_check_draws > 0 and n_chk < settings.n_check_draws:
+        diag.setdefault("warnings", []).append(
+            f"the predictive check ran {n_chk} of {settings.n_check_draws} draws "
+            f"(forward_budget = {settings.forward_budget})")
+    if surrogate is not None and getattr(surrogate, "kind", "") != "emulator":
         diag["surrogate"] = {
             "lengthscale_unit": surrogate.lengthscale.tolist(),
             "outputscale": surrogate.outputscale,
@@ -393,6 +442,159 @@ def sample_posterior(
         settings=settings_dict,
         surrogate=surrogate,
     )
+
+
+def _make_target(problem: Any, trials: pd.DataFrame, settings: PosteriorSettings) -> Any:
+    if settings.surrogate_of == "outputs":
+        from .emulated import EmulatorTarget, emulator_training_set
+
+        x, y = emulator_training_set(problem, trials)
+        if len(x) >= problem.dim + 2 and y.shape[1] > 0:
+            return EmulatorTarget(problem, x, y, seed=settings.seed or 0)
+    return _SurrogateTarget(settings)
+
+
+class _Budget:
+    """Forward runs of the posterior stage: what is left and what was spent on what."""
+
+    def __init__(self, settings: PosteriorSettings) -> None:
+        self.total = int(settings.forward_budget)
+        self.n_check = min(int(settings.n_check_draws), max(self.total - 1, 0))
+        self.used = 0
+        self.spent: dict[str, int] = {}
+
+    def left(self) -> int:
+        return max(self.total - self.used, 0)
+
+    def for_refinement(self) -> int:
+        """Runs refinement may still use (the check and the MAP keep theirs)."""
+        return max(self.left() - self.n_check - 1, 0)
+
+    def spend(self, source: str, n: int) -> None:
+        self.used += int(n)
+        key = source.rsplit("_", 1)[0] if source[-1:].isdigit() else source
+        self.spent[key] = self.spent.get(key, 0) + int(n)
+
+
+def _refine_and_sample(
+    target: Any, problem: Any, settings: PosteriorSettings, u_all: np.ndarray,
+    ll_all: np.ndarray, lp_u: Callable[[np.ndarray], np.ndarray], rng: np.random.Generator,
+    names: list[str], evaluate: Callable[[np.ndarray, str], list[DrawRun]],
+    refine_log: list[dict[str, Any]], budget: _Budget,
+) -> tuple:
+    """Fit, sample, and refine where the mass sits until the stated error is small enough.
+
+    Each round samples the posterior on the target, then measures the target's
+    stated error of the log-likelihood at posterior draws. Refinement stops
+    when the 90 % quantile of that error is below ``refine_threshold_nats``
+    and the last round's forward runs agreed with the target, or when the
+    rounds or the budget run out. The MAP is the best of the basins' optima,
+    verified with one forward run (or the best trial when that is better).
+    """
+    u_train, ll_train = u_all, ll_all
+    agreed = False
+    basins: list[tuple[np.ndarray, float]] = []
+    stop_reason = "no refinement (n_refine_rounds = 0)"
+    for round_ in range(settings.n_refine_rounds + 1):
+        target.fit(u_train, ll_train)
+        score = ll_train + lp_u(u_train)
+
+        def mean_post(u: np.ndarray) -> np.ndarray:
+            prior = lp_u(u)
+            out = np.full(len(u), -np.inf)
+            fin = np.isfinite(prior)
+            if fin.any():
+                out[fin] = target.mean(u[fin]) + prior[fin]
+            return out
+
+        basins = find_basins(mean_post, u_train, score, settings.n_ensembles,
+                             extra_starts=[b[0] for b in basins])
+        # a short scout run decides about refinement; the full run comes once, at the end
+        scout_burn = min(settings.burn_in, _SCOUT_STEPS)
+        scout = replace(settings, burn_in=scout_burn,
+                        n_steps=min(settings.n_steps, scout_burn + _SCOUT_STEPS),
+                        stop_on_autocorr=False)
+        unit_samples, log_post, realisation, diag = _sample_target(
+            target, lp_u, scout, basins, u_train, score, rng, names)
+        probe = unit_samples[rng.choice(len(unit_samples), size=min(256, len(unit_samples)),
+                                        replace=False)]
+        err90 = float(np.quantile(_stated_error(target, probe), 0.9))
+        entry: dict[str, Any] = {"round": round_, "stated_error_90_nats": err90,
+                                 "n_basins": len(basins)}
+        final = None
+        if refine_log and agreed and err90 <= settings.refine_threshold_nats:
+            final = (f"stated error of the log-likelihood at posterior draws "
+                     f"{err90:.3g} nats <= {settings.refine_threshold_nats:g} and the "
+                     "last forward runs agreed")
+        n_run = min(settings.n_refine_draws, budget.for_refinement())
+        if final is None and (round_ == settings.n_refine_rounds or n_run <= 0):
+            final = ("refinement rounds used up" if n_run > 0 else
+                     "posterior forward budget used up") + \
+                f" (stated error {err90:.3g} nats, threshold {settings.refine_threshold_nats:g})"
+        if final is not None:
+            stop_reason = final
+            refine_log.append(entry)
+            unit_samples, log_post, realisation, diag = _sample_target(
+                target, lp_u, settings, basins, u_train, score, rng, names)
+            break
+        # where the mass sits: half the runs where the target is least sure, half at random
+        cand = unit_samples[rng.choice(len(unit_samples), size=min(8 * n_run,
+                                       len(unit_samples)), replace=False)]
+        err = _stated_error(target, cand)
+        pick = np.argsort(-err)[: (n_run + 1) // 2]
+        rest = np.setdiff1d(np.arange(len(cand)), pick)
+        pick = np.concatenate([pick, rng.choice(rest, size=n_run - len(pick), replace=False)])
+        u_new = cand[pick]
+        mean, std = target.predict(u_new)
+        runs = evaluate(u_new, f"posterior_refine_{round_ + 1}")
+        good = np.array([r.ok for r in runs], dtype=bool)
+        new_ll = np.array([r.log_likelihood for r in runs])[good]
+        z = (new_ll - mean[good]) / np.sqrt(std[good] ** 2 + settings.check_tolerance_nats**2)
+        disagree = float(np.mean(np.abs(z) > 3.0)) if len(z) else 1.0
+        failed = float(1.0 - good.mean()) if len(good) else 1.0
+        agreed = (disagree <= settings.check_max_disagree_fraction
+                  and failed <= settings.check_max_failed_fraction)
+        entry.update({"n_runs": len(runs), "n_ok": int(good.sum()),
+                      "disagree_fraction": disagree, "failed_fraction": failed,
+                      "max_abs_error_nats": float(np.max(np.abs(new_ll - mean[good])))
+                      if len(new_ll) else math.nan})
+        refine_log.append(entry)
+        target.add(u_new, runs)
+        u_train = np.vstack([u_train, u_new[good]])
+        ll_train = np.concatenate([ll_train, new_ll])
+        if not settings.refine_until_agreement:
+            agreed = False
+    diag["refine_stop_reason"] = stop_reason
+    diag["n_target_fits"] = getattr(target, "n_fits", 0)
+    # ----- MAP: the best basin optimum, verified with a real run
+    lp_total = ll_train + lp_u(u_train)
+    best_i = int(np.argmax(lp_total))
+    map_u, map_ll, map_source = u_train[best_i], float(ll_train[best_i]), "best_trial"
+    if basins and budget.left() > budget.n_check:
+        cand_u = basins[0][0]
+        cand_run = evaluate(cand_u[None, :], "posterior_map")[0]
+        if cand_run.ok:
+            cand_score = cand_run.log_likelihood + float(lp_u(cand_u[None, :])[0])
+            if cand_score >= float(lp_total[best_i]):
+                map_u, map_ll = cand_u, float(cand_run.log_likelihood)
+                map_source = f"{target.kind}_optimum"
+    return (unit_samples, log_post, realisation, diag, map_u, map_ll, map_source,
+            u_train, ll_train)
+
+
+def _map_exact(u_all: np.ndarray, ll_all: np.ndarray, lp_u: Callable[[np.ndarray], np.ndarray],
+               unit_samples: np.ndarray, log_post: np.ndarray,
+               evaluate: Callable[[np.ndarray, str], list[DrawRun]] | None) -> tuple:
+    lp_total = ll_all + lp_u(u_all)
+    best_i = int(np.argmax(lp_total))
+    map_u, map_ll, source = u_all[best_i], float(ll_all[best_i]), "best_trial"
+    if evaluate is None or not len(log_post):
+        return map_u, map_ll, source
+    cand_u = unit_samples[int(np.argmax(log_post))]
+    run = evaluate(cand_u[None, :], "posterior_map")[0]
+    if run.ok and run.log_likelihood + float(lp_u(cand_u[None, :])[0]) >= float(lp_total[best_i]):
+        return cand_u, float(run.log_likelihood), "chain"
+    return map_u, map_ll, source
 
 
 def _warn_diagnostics(diag: dict[str, Any]) -> None:

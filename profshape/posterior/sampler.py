@@ -51,6 +51,12 @@ class EnsembleRun:
     diagnostics: dict[str, Any] = field(default_factory=dict)
 
 
+#: Stop once the tau estimate changes by less than this fraction between checks, as in
+#: emcee's tutorial on monitoring progress (from memory; that tutorial also asks for
+#: 100 tau, we use emcee's own reliability threshold of 50 tau, get_autocorr_time's tol).
+AUTOCORR_RTOL = 0.01
+
+
 def run_ensemble(
     log_prob: Callable[[np.ndarray], np.ndarray],
     initial: np.ndarray,
@@ -59,6 +65,9 @@ def run_ensemble(
     burn_in: int,
     thin: int = 1,
     seed: int | None = None,
+    stop_on_autocorr: bool = False,
+    check_every: int = 100,
+    min_steps: int = 0,
 ) -> EnsembleRun:
     """Run emcee on a vectorised log-density over the unit cube.
 
@@ -74,6 +83,15 @@ def run_ensemble(
         Steps per walker, leading steps dropped, keep every ``thin``-th step.
     seed : int or None
         Seed of the sampler's random state.
+    stop_on_autocorr : bool, default=False
+        Stop before ``n_steps`` (then the most steps) once the kept chain is
+        longer than 50 integrated autocorrelation times (emcee's reliability
+        threshold) and the estimate of tau changed by less than 1 % since the
+        previous check (as in emcee's tutorial on monitoring progress; from memory).
+    check_every : int, default=100
+        Steps between two autocorrelation checks.
+    min_steps : int, default=0
+        Never stop before this many steps.
 
     Returns
     -------
@@ -112,10 +130,28 @@ def run_ensemble(
         )
     sampler = emcee.EnsembleSampler(n_walkers, d, bounded, vectorize=True)
     sampler.random_state = np.random.RandomState(seed).get_state()
-    sampler.run_mcmc(p0, int(n_steps), progress=False)
+    if stop_on_autocorr:
+        import emcee
+
+        old_tau = None
+        for _ in sampler.sample(p0, iterations=int(n_steps), progress=False):
+            it = sampler.iteration
+            if it % int(check_every) or it <= burn_in + 1 or it < min_steps:
+                continue
+            kept = sampler.get_chain(discard=int(burn_in))
+            tau = np.asarray(emcee.autocorr.integrated_time(kept, tol=0, quiet=True), float)
+            long_enough = np.all(kept.shape[0] > AUTOCORR_LENGTH_FACTOR * tau)
+            stable = old_tau is not None and np.all(np.abs(old_tau - tau) < AUTOCORR_RTOL * tau)
+            old_tau = tau
+            if long_enough and stable:
+                break
+    else:
+        sampler.run_mcmc(p0, int(n_steps), progress=False)
+    n_run = int(sampler.iteration)
     chain = sampler.get_chain(discard=int(burn_in), thin=int(thin))
     lp = sampler.get_log_prob(discard=int(burn_in), thin=int(thin))
-    diagnostics = _diagnostics(sampler, n_steps, burn_in, thin)
+    diagnostics = _diagnostics(sampler, n_run, burn_in, thin)
+    diagnostics["stopped_on_autocorr"] = bool(stop_on_autocorr and n_run < int(n_steps))
     return EnsembleRun(samples=chain.reshape(-1, d), log_prob=lp.reshape(-1),
                        diagnostics=diagnostics)
 
@@ -130,7 +166,7 @@ def _diagnostics(sampler: Any, n_steps: int, burn_in: int, thin: int) -> dict[st
 
         tau = np.asarray(emcee.autocorr.integrated_time(chain, tol=0, quiet=True), dtype=float)
         reliable = bool(np.all(n_kept > AUTOCORR_LENGTH_FACTOR * tau))
-    tau = np.maximum(tau, 1.0)
+    tau = np.maximum(np.nan_to_num(tau, nan=float(max(n_kept, 1))), 1.0)
     ess = n_kept * n_walkers / tau
     acc = np.asarray(sampler.acceptance_fraction, dtype=float)
     return {
@@ -144,34 +180,46 @@ def _diagnostics(sampler: Any, n_steps: int, burn_in: int, thin: int) -> dict[st
         "burn_in": int(burn_in),
         "thin": int(thin),
         "n_samples": int(len(range(burn_in, n_steps, thin)) * n_walkers),
+        "kept_steps": int(n_kept),
     }
 
 
 def combine_diagnostics(
     runs: Sequence[dict[str, Any]], names: Sequence[str], *, warn: bool = True
 ) -> dict[str, Any]:
-    """Pool the diagnostics of several independent runs (one per GP realisation).
+    """Pool the diagnostics of several independent runs (GP realisations, starting basins).
 
-    Effective sample sizes add up; autocorrelation times and acceptance
-    fractions are reported as the worst (largest time, smallest fraction) and
-    the mean. Emits a :class:`~profshape.exceptions.ConvergenceWarning` when a
+    One autocorrelation time ``autocorr_time_steps``: the largest integrated
+    autocorrelation time over coefficients and runs [steps]. One effective
+    sample size ``effective_sample_size_total = sum over runs of n_walkers *
+    kept_steps / autocorr_time_steps`` (the emcee documentation's ESS with the
+    worst tau). Per-coefficient figures are kept in ``autocorr_time`` and
+    ``effective_sample_size`` (dicts by name). Acceptance fractions are
+    reported as the mean and the smallest. Emits a :class:`~profshape.exceptions.ConvergenceWarning` when a
     run is shorter than 50 autocorrelation times or its acceptance fraction
     lies outside ``ACCEPTANCE_RANGE``.
     """
     tau = np.array([r["autocorr_time"] for r in runs], dtype=float)
     ess = np.array([r["effective_sample_size"] for r in runs], dtype=float)
     acc = np.array([r["acceptance_fraction"] for r in runs], dtype=float)
+    tau_max = float(np.max(tau))
+    kept = [int(r.get("kept_steps", r["n_steps"] - r["burn_in"])) for r in runs]
+    ess_total = float(sum(int(r["n_walkers"]) * k for r, k in zip(runs, kept, strict=True))
+                      / tau_max)
     out: dict[str, Any] = {
+        "autocorr_time_steps": tau_max,
+        "effective_sample_size_total": ess_total,
+        "kept_steps": kept,
         "n_runs": len(runs),
         "acceptance_fraction": float(acc.mean()),
         "acceptance_fraction_min": float(min(r["acceptance_fraction_min"] for r in runs)),
         "autocorr_time": dict(zip(names, tau.max(axis=0).tolist(), strict=True)),
         "autocorr_reliable": bool(all(r["autocorr_reliable"] for r in runs)),
         "effective_sample_size": dict(zip(names, ess.sum(axis=0).tolist(), strict=True)),
-        "min_effective_sample_size": float(ess.sum(axis=0).min()),
+        "min_effective_sample_size": ess_total,
         "n_samples": int(sum(r["n_samples"] for r in runs)),
         "n_walkers": int(runs[0]["n_walkers"]),
-        "n_steps": int(runs[0]["n_steps"]),
+        "n_steps": int(max(r["n_steps"] for r in runs)),
         "burn_in": int(runs[0]["burn_in"]),
         "thin": int(runs[0]["thin"]),
     }
@@ -179,7 +227,7 @@ def combine_diagnostics(
     if not out["autocorr_reliable"]:
         worst = max(out["autocorr_time"], key=out["autocorr_time"].get)
         problems.append(
-            f"the kept chain ({out['n_steps'] - out['burn_in']} steps) is shorter than "
+            f"the kept chain ({min(kept)} steps) is shorter than "
             f"{AUTOCORR_LENGTH_FACTOR:.0f} autocorrelation times (tau = "
             f"{out['autocorr_time'][worst]:.1f} steps for {worst!r}); raise n_steps"
         )

@@ -11,6 +11,7 @@ from ..exceptions import InputDataError
 __all__ = ["PosteriorSettings"]
 
 SamplingMethod = Literal["surrogate", "exact"]
+SurrogateOf = Literal["outputs", "log_likelihood"]
 
 
 def _int_at_least(name: str, value: Any, low: int, fix: str) -> int:
@@ -65,12 +66,21 @@ class PosteriorSettings:
         log-likelihood fitted to the trials (cheap; the only practical choice
         with a costly forward model). ``"exact"``: every sampler step runs the
         forward model (``n_walkers * n_steps`` runs; for cheap models and tests).
+    surrogate_of : {"outputs", "log_likelihood"}, default="outputs"
+        What the surrogate models with ``method="surrogate"``. ``"outputs"``:
+        the forward model's outputs at the measured positions and the
+        measured scalars (:class:`profshape.emulator.OutputEmulator`), with the
+        emulator's predictive variance added to the data variance (Kennedy and
+        O'Hagan 2001; Higdon et al. 2008); needs the trials' stored
+        predictions, else falls back to ``"log_likelihood"`` with a warning.
+        ``"log_likelihood"``: a GP of the log-likelihood sampled through GP
+        realisations (for objectives that give only a number).
     n_walkers : int, default=32
         Walkers of the affine-invariant ensemble sampler, per GP realisation.
         Must be even and at least twice the number of coefficients (the
         sampler's requirement).
-    n_steps : int, default=2000
-        Steps per walker, burn-in included.
+    n_steps : int, default=10000
+        Most steps per walker, burn-in included (see ``stop_on_autocorr``).
     burn_in : int, default=500
         Leading steps discarded, ``0 <= burn_in < n_steps``.
     thin : int, default=1
@@ -111,6 +121,28 @@ class PosteriorSettings:
         narrow posteriors in up to ~20 dimensions.
     max_gp_trials : int, default=400
         At most this many ok trials (the best ones) train the GP.
+    stop_on_autocorr : bool, default=True
+        Stop each chain before ``n_steps`` once its kept part is longer than 50
+        integrated autocorrelation times (emcee's reliability threshold) and the
+        estimate changed by less than 1 % since the last check (every 100
+        steps); ``n_steps`` is then the most steps.
+    forward_budget : int, default=32
+        Most forward runs of the posterior stage in :func:`sample_posterior`
+        (refinement, MAP, predictive check; each runs every operating point).
+        ``n_check_draws`` + 1 are kept for the check and the MAP; refinement
+        gets the rest. Bands taken from an emulator need no further run.
+        Common practice, no source: a budget comparable to a search's.
+    refine_threshold_nats : float, default=1.0
+        Refinement goes on (within the budget) until the surrogate's or
+        emulator's stated error of the log-likelihood at posterior draws is
+        below this [nats] at 90 % of the draws and the forward runs agree with
+        it. An error of 1 nat changes the posterior density by a factor e.
+    n_ensembles : int, default=4
+        Independent walker ensembles, started in distinct basins of the
+        log-likelihood (local optima of the surrogate or emulator from the best
+        trials) and pooled with weights from a Laplace estimate of each basin's
+        mass; ensembles that end in the same basin share its weight. With GP
+        realisations (``n_gp_draws > 0``) each realisation is one ensemble.
     band_levels : tuple of float, default=(0.68, 0.95)
         Central credible levels of intervals and bands.
     seed : int or None, default=0
@@ -118,8 +150,9 @@ class PosteriorSettings:
     """
 
     method: SamplingMethod = "surrogate"
+    surrogate_of: SurrogateOf = "outputs"
     n_walkers: int = 32
-    n_steps: int = 2000
+    n_steps: int = 10000
     burn_in: int = 500
     thin: int = 1
     n_gp_draws: int = 8
@@ -133,6 +166,10 @@ class PosteriorSettings:
     check_max_failed_fraction: float = 0.25
     log_likelihood_floor_nats: float = 150.0
     max_gp_trials: int = 400
+    stop_on_autocorr: bool = True
+    forward_budget: int = 32
+    refine_threshold_nats: float = 1.0
+    n_ensembles: int = 4
     band_levels: tuple[float, ...] = field(default=(0.68, 0.95))
     seed: int | None = 0
 
@@ -140,6 +177,11 @@ class PosteriorSettings:
         if self.method not in ("surrogate", "exact"):
             raise InputDataError(
                 f"PosteriorSettings.method must be 'surrogate' or 'exact'; got {self.method!r}."
+            )
+        if self.surrogate_of not in ("outputs", "log_likelihood"):
+            raise InputDataError(
+                "PosteriorSettings.surrogate_of must be 'outputs' or 'log_likelihood'; got "
+                f"{self.surrogate_of!r}."
             )
         nw = _int_at_least("n_walkers", self.n_walkers, 2, "Use an even number such as 32.")
         if nw % 2:
@@ -170,11 +212,22 @@ class PosteriorSettings:
             ("n_refine_draws", 1, "Use about 16."),
             ("n_check_draws", 0, "Use 0 to skip the check."),
             ("max_gp_trials", 4, "Use a few hundred."),
+            ("forward_budget", 0, "Use about 32 (0: no forward run; no check)."),
+            ("n_ensembles", 1, "Use about 4."),
         ):
             object.__setattr__(self, name, _int_at_least(name, getattr(self, name), low, fix))
         object.__setattr__(
             self, "check_tolerance_nats",
             _positive_float("check_tolerance_nats", self.check_tolerance_nats),
+        )
+        if not isinstance(self.stop_on_autocorr, bool):
+            raise InputDataError(
+                "PosteriorSettings.stop_on_autocorr must be True or False; got "
+                f"{self.stop_on_autocorr!r}."
+            )
+        object.__setattr__(
+            self, "refine_threshold_nats",
+            _positive_float("refine_threshold_nats", self.refine_threshold_nats, "Use about 1."),
         )
         object.__setattr__(
             self, "log_likelihood_floor_nats",

@@ -185,6 +185,8 @@ def fit_log_likelihood_surrogate(
     floor_nats: float = 150.0,
     max_trials: int = 400,
     seed: int | None = 0,
+    warm_start: LogLikelihoodSurrogate | None = None,
+    max_iter: int | None = None,
 ) -> LogLikelihoodSurrogate:
     """Fit a Matern 5/2 ARD ``SingleTaskGP`` to log-likelihood values.
 
@@ -200,6 +202,11 @@ def fit_log_likelihood_surrogate(
         Keep at most this many trials (the highest log-likelihoods).
     seed : int or None, default=0
         Torch seed of the hyper-parameter fit.
+    warm_start : LogLikelihoodSurrogate, optional
+        A previous fit whose hyper-parameters start this one (a refit after a
+        few new trials); the fit then makes a single attempt.
+    max_iter : int, optional
+        Most L-BFGS iterations of the hyper-parameter fit (default: botorch's).
 
     Raises
     ------
@@ -250,6 +257,17 @@ def fit_log_likelihood_surrogate(
         outcome_transform=None,
     )
     mll = ExactMarginalLogLikelihood(model.likelihood, model)
-    fit_gpytorch_mll(mll)
+    fit_kwargs: dict = {}
+    if max_iter is not None:
+        fit_kwargs["optimizer_kwargs"] = {"options": {"maxiter": int(max_iter)}}
+    if warm_start is not None and warm_start.dim == d:
+        covar = model.covar_module
+        covar.base_kernel.lengthscale = torch.as_tensor(warm_start.lengthscale,
+                                                        dtype=torch.float64).reshape(1, d)
+        covar.outputscale = torch.as_tensor(warm_start.outputscale, dtype=torch.float64)
+        model.likelihood.noise = torch.as_tensor(
+            [max(warm_start.noise, 1.1e-6)], dtype=torch.float64)
+        fit_kwargs["max_attempts"] = 1
+    fit_gpytorch_mll(mll, **fit_kwargs)
     model.eval()
     return LogLikelihoodSurrogate(model, u, ll, y_mean, y_std, floor)

@@ -18,10 +18,23 @@ import numpy as np
 import torch
 
 from ..exceptions import InputDataError
+from ..output_layout import OutputLayout
 from .acquisition import make_acquisition, optimize_acquisition
+from .bounds import BoundHit, bound_hits
+from .composite import (
+    COMPOSITE,
+    EXPLORE,
+    FULL_REFIT_BELOW,
+    REFIT_GROWTH,
+    composite_acquisition,
+    composite_misfit,
+    fit_emulator,
+    propose_composite,
+    stall_length,
+)
 from .design import derived_seed, sobol_point, user_points_to_unit
 from .settings import SearchSettings
-from .stopping import StopRules, count_later
+from .stopping import STOP_BUDGET, STOP_PATIENCE, STOP_TARGET, StopRules, count_later
 from .surrogate import (
     combined_model,
     fit_feasibility_model,
@@ -87,7 +100,12 @@ class Proposal:
 
 @dataclass
 class Observation:
-    """A finished trial as the search sees it."""
+    """A finished trial as the search sees it.
+
+    ``outputs`` is the trial's output vector
+    (:meth:`profshape.output_layout.OutputLayout.vector`) when known: what the
+    composite strategy's emulator learns from.
+    """
 
     trial: int
     batch: int
@@ -95,6 +113,7 @@ class Observation:
     u: np.ndarray
     value: float
     ok: bool
+    outputs: np.ndarray | None = None
 
 
 class Search:
@@ -107,11 +126,25 @@ class Search:
     settings : SearchSettings
         Budget, batch size, initial design, seed, optimiser effort.
 
+    Under the default strategy ``"composite"`` and a calibration problem
+    (anything with a ``dataset``), the search models the forward model's
+    outputs (:mod:`profshape.search.composite`) and needs them: tell each
+    trial's output vector (:meth:`outputs_of` of its predictions) with
+    :meth:`tell` (``run_search`` does). For a space without data, or while
+    some successful trial lacks its outputs, it proposes as
+    ``"trust_region"`` does (a GP of the scalar objective).
+
     Attributes
     ----------
+    layout : OutputLayout or None
+        Order of the outputs the composite strategy emulates (``None``:
+        scalar strategies only).
+    emulator_ : OutputEmulator or None
+        Emulator of the last composite proposal.
     model_ : botorch Model or None
         Model used for the last proposal: the objective GP, or a ModelListGP
-        (objective, failure indicator) once a run has failed.
+        (objective, failure indicator) once a run has failed; the emulator's
+        botorch model for a composite proposal.
     objective_model_ : SingleTaskGP or None
         GP of the outcome ``-log(reduced_chi2)`` (or ``-value`` with
         ``objective_transform="identity"``) on the unit cube.
@@ -167,8 +200,12 @@ class Search:
         self.feasibility_model_ = None
         self.acquisition_ = None
         self.trust_region_bounds_: np.ndarray | None = None
+        self.emulator_ = None
         self._warm: dict[str, dict[str, list[float]]] = {}
         self._kinds: dict[int, str] = {}
+        self.layout: OutputLayout | None = None
+        if settings.strategy == COMPOSITE and hasattr(space, "dataset"):
+            self.layout = OutputLayout.from_problem(space)
 
     # ------------------------------------------------------------------ state
     @property
@@ -213,15 +250,33 @@ class Search:
         return None if b is None else self._coefficients(b.u)
 
     def stop_reason(self) -> str | None:
-        """Why the search should stop now (``"budget"``, ``"target"``, ``"patience"``)."""
+        """Why the search should stop now (``"budget"``, ``"target"``, ``"patience"``).
+
+        The target and patience rules wait while a coefficient of the best
+        trial is within 1 % of a bound (:meth:`on_bounds`): the best fit may
+        lie beyond it, and only the budget ends such a search.
+        """
         b = self.best()
         later = count_later(
             ((o.trial, o.source) for o in self._observations.values()),
             None if b is None else b.trial,
         )
-        return self.stop_rules.reason(
+        reason = self.stop_rules.reason(
             self._next_trial, math.inf if b is None else b.value, later
         )
+        if reason in (STOP_TARGET, STOP_PATIENCE) and self.on_bounds():
+            # no early stop while the best fit sits on a bound: only the budget ends it
+            return STOP_BUDGET if self.remaining_budget() == 0 else None
+        return reason
+
+    def on_bounds(self) -> list[BoundHit]:
+        """Coefficients of the best trial within 1 % of a bound (see
+        :mod:`profshape.search.bounds`); empty when none, or no trial succeeded."""
+        b = self.best()
+        bounds = getattr(self.space, "bounds", None)
+        if b is None or bounds is None:
+            return []
+        return bound_hits(b.u, self.names, np.asarray(bounds, dtype=float))
 
     def kind_of(self, trial: int, default: str = "") -> str:
         """How trial ``trial`` was proposed (see :attr:`proposal_kinds`), else ``default``."""
@@ -231,8 +286,25 @@ class Search:
     def proposal_kinds(self) -> dict[int, str]:
         """Kind of each model-based proposal by trial index: ``"global"`` expected
         improvement over the whole cube or ``"trust_region"`` (see
-        :mod:`profshape.search.trust_region`)."""
+        :mod:`profshape.search.trust_region`), ``"composite"`` or ``"explore"``
+        (see :mod:`profshape.search.composite`)."""
         return dict(self._kinds)
+
+    def outputs_of(self, predictions: Any) -> np.ndarray | None:
+        """The output vector of a trial's predictions for :meth:`tell`, or ``None``
+        (no composite layout, or predictions without a usable misfit)."""
+        if self.layout is None or predictions is None:
+            return None
+        try:
+            return self.layout.vector(predictions)
+        except InputDataError:
+            return None
+
+    def _composite_ready(self) -> bool:
+        if self.layout is None:
+            return False
+        ok = [o for o in self._observations.values() if o.ok]
+        return len(ok) >= MIN_OK_FOR_MODEL and all(o.outputs is not None for o in ok)
 
     def _coefficients(self, u: np.ndarray) -> dict[str, float]:
         x = np.asarray(self.space.from_unit(np.asarray(u, dtype=float)), dtype=float).reshape(-1)
@@ -305,7 +377,8 @@ class Search:
         return p
 
     def fit(self) -> None:
-        """Fit the objective (and, after a failure, the feasibility) GP to the data.
+        """Fit the models of the next proposal to the data: the output emulator
+        (composite strategy) or the objective GP, and the feasibility GP after a failure.
 
         Called by :meth:`ask`; call it yourself to inspect ``model_`` at any time.
         Each fit starts from the hyperparameters of the previous one when they
@@ -313,7 +386,27 @@ class Search:
         :mod:`profshape.search.surrogate`).
         """
         with _torch_threads(self.settings.torch_threads):
-            self._fit()
+            if self._composite_ready():
+                self._fit_composite()
+            else:
+                self._fit()
+
+    def _fit_feasibility(self) -> None:
+        obs = self.observations
+        n_failed = sum(1 for o in obs if not o.ok)
+        if not n_failed:
+            self.feasibility_model_ = None
+            return
+        # hyperparameters re-optimised only when a new failure has arrived
+        meta = self._warm.get("feasibility_meta", {})
+        refit = "feasibility" not in self._warm or meta.get("n_failed", [-1])[0] != n_failed
+        self.feasibility_model_ = fit_feasibility_model(
+            np.array([o.u for o in obs]), np.array([not o.ok for o in obs]),
+            max_attempts=self.settings.max_fit_attempts,
+            warm_start=self._warm.get("feasibility"), optimize=refit,
+        )
+        self._warm["feasibility"] = hyperparameters(self.feasibility_model_)
+        self._warm["feasibility_meta"] = {"n_failed": [float(n_failed)]}
 
     def _fit(self) -> None:
         obs = self.observations
@@ -329,18 +422,31 @@ class Search:
                 u_ok, y_ok, max_attempts=attempts, warm_start=self._warm.get("objective")
             )
             self._warm["objective"] = hyperparameters(self.objective_model_)
-            if len(ok) < len(obs):
-                u_all = np.array([o.u for o in obs])
-                failed = np.array([not o.ok for o in obs])
-                self.feasibility_model_ = fit_feasibility_model(
-                    u_all, failed, max_attempts=attempts,
-                    warm_start=self._warm.get("feasibility"),
-                )
-                self._warm["feasibility"] = hyperparameters(self.feasibility_model_)
-            else:
-                self.feasibility_model_ = None
+            self._fit_feasibility()
         self.model_ = combined_model(self.objective_model_, self.feasibility_model_)
         self._train = (u_ok, y_ok)
+
+    def _fit_composite(self) -> None:
+        ok = [o for o in self.observations if o.ok]
+        u_ok = np.array([o.u for o in ok])
+        Y_ok = np.array([o.outputs for o in ok])
+        n = len(ok)
+        last = self._warm.get("emulator_meta", {}).get("n_fit", [0.0])[0]
+        refit = n < FULL_REFIT_BELOW or n >= REFIT_GROWTH * last or "emulator" not in self._warm
+        seed = derived_seed(self.settings.seed, "fit", self._next_trial)
+        with torch.random.fork_rng():
+            torch.manual_seed(seed % 2**63)
+            em = fit_emulator(u_ok, Y_ok, self.layout, seed=seed % 2**31,
+                              warm=self._warm.get("emulator"), refit=refit,
+                              max_attempts=self.settings.max_fit_attempts)
+            self._fit_feasibility()
+        if em.score_model_ is not None:
+            self._warm["emulator"] = em.hyperparameters()
+            if em.optimized_:
+                self._warm["emulator_meta"] = {"n_fit": [float(n)]}
+        self.emulator_ = em
+        self.model_ = em.model()
+        self._train_composite = (u_ok, np.asarray(composite_misfit(self.layout, Y_ok, u_ok)))
 
     def trust_region(self) -> TrustRegionState:
         """Trust-region state now, replayed from the finished trials (see
@@ -353,6 +459,10 @@ class Search:
     def _next_kind(self) -> str:
         """Kind of the next model-based batch under the configured strategy."""
         strategy = self.settings.strategy
+        if strategy == COMPOSITE:
+            if self._composite_ready():
+                return self._composite_kind()
+            strategy = TRUST_REGION  # a scalar objective: the scalar strategy
         if strategy == GLOBAL:
             return GLOBAL
         if (TRUST_REGION not in self._kinds.values()
@@ -367,6 +477,14 @@ class Search:
                 return GLOBAL
         return TRUST_REGION
 
+    def _composite_kind(self) -> str:
+        """``"explore"`` after ``stall_length(d)`` composite proposals since the best
+        trial (or the last exploration), else ``"composite"``."""
+        b = self.best()
+        ref = max([b.trial] + [t for t, k in self._kinds.items() if k == EXPLORE])
+        since = sum(1 for t, k in self._kinds.items() if t > ref and k == COMPOSITE)
+        return EXPLORE if since >= stall_length(self.dim) else COMPOSITE
+
     def _bounds(self, kind: str) -> np.ndarray | None:
         if kind != TRUST_REGION:
             self.trust_region_bounds_ = None
@@ -380,6 +498,8 @@ class Search:
         return self.trust_region_bounds_
 
     def _propose(self, q: int, pending_u: np.ndarray) -> tuple[np.ndarray, str]:
+        if self._composite_ready():
+            return self._propose_composite(q, pending_u)
         with _torch_threads(self.settings.torch_threads):
             self._fit()
             u_ok, y_ok = self._train
@@ -389,6 +509,28 @@ class Search:
             with torch.random.fork_rng():
                 torch.manual_seed(seed)
                 return self._optimize(q, pending_u, u_ok, y_ok, seed, bounds), kind
+
+    def _propose_composite(self, q: int, pending_u: np.ndarray) -> tuple[np.ndarray, str]:
+        with _torch_threads(self.settings.torch_threads):
+            self._fit_composite()
+            kind = self._composite_kind()
+            self.trust_region_bounds_ = None
+            if self.emulator_.n_components_ == 0:  # outputs all alike so far: space-filling
+                return np.array([self._sobol_next() for _ in range(q)]), EXPLORE
+            u_ok, chi2 = self._train_composite
+            seed = derived_seed(self.settings.seed, "proposal", self._next_trial)
+            with torch.random.fork_rng():
+                torch.manual_seed(seed)
+                self.acquisition_ = composite_acquisition(
+                    self.emulator_, self.layout, float(np.min(chi2)),
+                    pending_u=pending_u if len(pending_u) else None,
+                    feasibility=self.feasibility_model_, mc_samples=self.settings.mc_samples,
+                    seed=seed % 2**31)
+                cand = propose_composite(
+                    self.acquisition_, self.dim, q, u_ok=u_ok, chi2_ok=chi2,
+                    num_restarts=self.settings.num_restarts,
+                    raw_samples=self.settings.raw_samples, seed=seed % 2**31, kind=kind)
+            return cand, kind
 
     def _optimize(self, q: int, pending_u: np.ndarray, u_ok: np.ndarray, y_ok: np.ndarray,
                   seed: int, bounds: np.ndarray | None = None) -> np.ndarray:
@@ -413,7 +555,8 @@ class Search:
         )
         return cand
 
-    def tell(self, trial: int, value: float | None, ok: bool | None = None) -> Observation:
+    def tell(self, trial: int, value: float | None, ok: bool | None = None,
+             outputs: np.ndarray | None = None) -> Observation:
         """Record the result of a proposed trial.
 
         Parameters
@@ -426,6 +569,9 @@ class Search:
         ok : bool, optional
             Force the status; default: ok when ``value`` is finite (and >= 0 with
             the log transform; values below :data:`LOG_FLOOR` count as it).
+        outputs : array_like of shape (m,), optional
+            The trial's output vector (:meth:`outputs_of` of its predictions),
+            for the composite strategy; ignored for a failed trial.
 
         Returns
         -------
@@ -446,7 +592,15 @@ class Search:
                 f"tell: trial {trial} marked ok with an unusable value {value!r}; pass a "
                 "finite value (>= 0 for the log transform) or ok=False."
             )
-        obs = Observation(p.trial, p.batch, p.source, p.u, v if ok else math.nan, bool(ok))
+        out = None
+        if ok and outputs is not None and self.layout is not None:
+            out = np.asarray(outputs, dtype=float).reshape(-1)
+            if out.shape != (self.layout.n_outputs,) or not np.all(np.isfinite(out)):
+                raise InputDataError(
+                    f"tell: outputs of trial {trial} must be {self.layout.n_outputs} finite "
+                    f"values (Search.outputs_of(predictions)); got shape {out.shape}."
+                )
+        obs = Observation(p.trial, p.batch, p.source, p.u, v if ok else math.nan, bool(ok), out)
         self._observations[trial] = obs
         return obs
 
@@ -512,7 +666,18 @@ class Search:
         mean, std : ndarray of shape (n,)
             In the modelled outcome: ``log(reduced_chi2)`` (log transform) or
             the value itself (identity), i.e. sign restored for minimisation.
+            Under the composite strategy: the mean and standard deviation of
+            ``log(reduced_chi2)`` over 256 emulator draws of the outputs.
         """
+        if self._composite_ready():
+            if self.emulator_ is None:
+                self.fit()
+            u = np.asarray(u, dtype=float).reshape(-1, self.dim)
+            draws = self.emulator_.sample(u, 256, seed=self.settings.seed)  # (s, n, m)
+            disc = self.layout.discrepancy_from_unit(u)
+            log_r = np.log(np.maximum(
+                np.asarray(self.layout.chi2(draws, disc)) / self.layout.dof(), 1e-300))
+            return log_r.mean(axis=0), log_r.std(axis=0)
         if self.objective_model_ is None:
             self.fit()
         x = torch.as_tensor(np.asarray(u, dtype=float).reshape(-1, self.dim), dtype=torch.float64)

@@ -39,6 +39,7 @@ from .._version import __version__
 from ..exceptions import ConfigError, ForwardModelError
 from ..forward.base import Prediction
 from ..trials import TrialLog, nan_if_inf, reason_signature
+from .bounds import BoundHit, warn_on_bounds
 from .engine import Observation, Proposal, Search
 from .progress import SearchProgress
 from .settings import SearchSettings
@@ -71,6 +72,11 @@ class SearchResult:
         The trial log.
     stop_detail : str
         For ``"repeated_failure"``: the reason those trials failed.
+    on_bounds : tuple of BoundHit
+        Coefficients of the best trial within 1 % of a bound of the search
+        range (:mod:`profshape.search.bounds`; a
+        :class:`~profshape.exceptions.BoundWarning` names each); empty when
+        none. ``[h.to_dict() for h in on_bounds]`` is JSON-ready.
     """
 
     trials: pd.DataFrame
@@ -82,6 +88,7 @@ class SearchResult:
     stop_reason: str
     log_path: Path
     stop_detail: str = ""
+    on_bounds: tuple[BoundHit, ...] = ()
 
 
 @dataclass
@@ -337,8 +344,11 @@ def _restore(search: Search, log: TrialLog, settings: SearchSettings, problem: A
         u = np.array([row[f"u__{n}"] for n in problem.names], dtype=float)
         ok = row["status"] == "ok"
         value = float(row["reduced_chi2"]) if ok else math.nan
+        outputs = None
+        if ok and search.layout is not None:
+            outputs = search.layout.vector_from_json(row.get("predictions"))
         finished.append(Observation(int(row["trial"]), int(row["batch"]), str(row["source"]),
-                                    u, value, ok))
+                                    u, value, ok, outputs))
         done.add(int(row["trial"]))
     in_flight = []
     if died:
@@ -403,6 +413,12 @@ def run_search(
         search with other parameters or another seed.
     ForwardModelError
         If the forward model cannot be sent to the executor.
+
+    Warns
+    -----
+    BoundWarning
+        When a coefficient of the best trial is within 1 % of a bound (the
+        message names the bound to widen; also in ``SearchResult.on_bounds``).
     """
     from ..executors import refuse_in_spawn_bootstrap
 
@@ -441,7 +457,8 @@ def run_search(
             row = _row(problem, run, outcome, finished_at, settings.seed)
             value = row["reduced_chi2"]
             log.append(row)  # log first, then learn: a trial the search rejects is still kept
-            search.tell(run.proposal.trial, value if outcome.ok else None, ok=outcome.ok)
+            search.tell(run.proposal.trial, value if outcome.ok else None, ok=outcome.ok,
+                        outputs=search.outputs_of(outcome.predictions) if outcome.ok else None)
             progress.update(outcome.ok, value, search.kind_of(run.proposal.trial, run.source))
             same.add(outcome.ok, row["error"])
         log.write_sidecar(_sidecar(search, settings, problem, None))
@@ -490,6 +507,8 @@ def run_search(
             runner.executor.shutdown(wait=True, cancel_futures=True)
         log.close()
     best = search.best()
+    hits = tuple(search.on_bounds())
+    warn_on_bounds(hits)
     return SearchResult(
         trials=log.frame(),
         best_coefficients=search.best_coefficients(),
@@ -500,4 +519,5 @@ def run_search(
         stop_reason=stop_reason,
         log_path=log_path,
         stop_detail=same.detail if stop_reason == REPEATED_FAILURE else "",
+        on_bounds=hits,
     )

@@ -13,8 +13,8 @@ from ..exceptions import ConfigError
 __all__ = ["SearchSettings"]
 
 ObjectiveTransform = Literal["log", "identity"]
-Strategy = Literal["global", "trust_region", "hybrid"]
-STRATEGIES = ("global", "trust_region", "hybrid")
+Strategy = Literal["composite", "global", "trust_region", "hybrid"]
+STRATEGIES = ("composite", "global", "trust_region", "hybrid")
 
 
 def _int_field(name: str, value: Any, minimum: int, *, allow_none: bool = False) -> None:
@@ -84,8 +84,21 @@ class SearchSettings:
         negative, such as test functions).
     max_fit_attempts : int, default=3
         Attempts of the hyperparameter fit (``botorch.fit.fit_gpytorch_mll``).
-    strategy : {"global", "trust_region", "hybrid"}, default="trust_region"
-        Where the acquisition function is maximised. ``"global"``: over the
+    strategy : {"composite", "global", "trust_region", "hybrid"}, default="composite"
+        How proposals are made. ``"composite"``: for a calibration problem,
+        the forward model's outputs at the measured positions (and its
+        scalars) are emulated (a reduced basis with a GP per component,
+        :class:`profshape.emulator.OutputEmulator`) and the proposal
+        maximises the Monte-Carlo expected improvement of the chi-square
+        computed from emulated outputs (Astudillo and Frazier 2019; see
+        :mod:`profshape.search.composite`), with a proposal in another basin
+        after each run of ``max(3, d)`` proposals without improvement; for
+        objectives that give only a number (a :class:`SearchSpace`, or
+        :meth:`Search.tell` without outputs) it falls back to
+        ``"trust_region"``. The other three model the scalar objective
+        ``log(reduced_chi2)`` with one GP (``"trust_region"`` was the default
+        before ``"composite"``) and differ in where the acquisition function
+        is maximised. ``"global"``: over the
         whole unit cube. ``"trust_region"``: after a warm-up of global
         proposals (``trust_region_warmup``), over a box around the best trial
         that grows after successes and shrinks after failures, in the manner
@@ -130,7 +143,7 @@ class SearchSettings:
     objective_transform: ObjectiveTransform = "log"
     max_fit_attempts: int = 3
     torch_threads: int | None = 1
-    strategy: Strategy = "trust_region"
+    strategy: Strategy = "composite"
     trust_region_warmup: int | None = None
 
     def __post_init__(self) -> None:

@@ -25,7 +25,9 @@ Feasibility model
     i.e. that a run succeeds, and the acquisition is weighted by it
     (constrained expected improvement, Gardner et al. 2014, "Bayesian
     optimization with inequality constraints", ICML). It is only built once a
-    trial has failed.
+    trial has failed, and its hyperparameters are re-optimised only when a new
+    failure has arrived since the last optimisation (in between, the GP is
+    conditioned on the new trials with the previous hyperparameters).
 """
 
 from __future__ import annotations
@@ -134,7 +136,10 @@ def _warm_start(mll: ExactMarginalLogLikelihood, warm: dict[str, Sequence[float]
 
 def _fit(model: SingleTaskGP, max_attempts: int,
          warm_start: dict[str, Sequence[float]] | None = None,
-         max_iter: int = 200) -> SingleTaskGP:
+         max_iter: int = 200, optimize: bool = True) -> SingleTaskGP:
+    if not optimize and warm_start and set_hyperparameters(model, warm_start):
+        model.eval()  # condition on the data with the given hyperparameters
+        return model
     mll = ExactMarginalLogLikelihood(model.likelihood, model)
     _warm_start(mll, warm_start)
     with warnings.catch_warnings():
@@ -199,6 +204,7 @@ def fit_feasibility_model(
     *,
     max_attempts: int = 3,
     warm_start: dict[str, Sequence[float]] | None = None,
+    optimize: bool = True,
 ) -> SingleTaskGP:
     """Fit the failure-indicator GP on all trials.
 
@@ -212,6 +218,10 @@ def fit_feasibility_model(
         Attempts of :func:`botorch.fit.fit_gpytorch_mll`.
     warm_start : dict, optional
         Raw hyperparameters of an earlier fit, as for :func:`fit_objective_model`.
+    optimize : bool, default=True
+        ``False`` with a ``warm_start``: keep those hyperparameters and only
+        condition on the trials (the search does this until a new failure
+        arrives).
 
     Returns
     -------
@@ -230,7 +240,7 @@ def fit_feasibility_model(
         ),
         outcome_transform=None,
     )
-    return _fit(model, max_attempts, warm_start)
+    return _fit(model, max_attempts, warm_start, optimize=optimize)
 
 
 def combined_model(objective: SingleTaskGP, feasibility: SingleTaskGP | None):

@@ -44,9 +44,21 @@ def _step2(c, z):
 
 
 def test_synthetic_truth_recovered(tmp_path):
+    check_synthetic_truth(tmp_path, seed=0)
+
+
+def check_synthetic_truth(tmp_path, seed=0):
+    """A noise-free two-coefficient truth recovered in 20 runs (also run over seeds 0-9 by
+    ``tests/search/sweep_seeds.py``)."""
     family = CustomFamily(_step2, {"log10_outer_level": (-2.0, 0.0),
                                    "transition_z_m": (0.015, 0.035)})
-    truth_c = np.array([-1.0, 0.026])
+    # The truth sits 4 mm of transition position (0.4 decades of outer level) away from
+    # a bistability of the solver at this grid: for transitions beyond about
+    # 26.5 mm at this outer level the solver settles on a second, slower branch (exit
+    # velocity about 16 instead of 20 km/s). A truth on that edge (0.026 m, as this
+    # test once had) makes the misfit a cliff whose side a run falls on depends on
+    # floating-point details, i.e. on the machine (issue 16).
+    truth_c = np.array([-1.0, 0.022])
     model = BuiltinSolverModel(demo_device(), FAST)
     point = demo_operating_points()[0]
     truth = model(family.profile(truth_c), point)
@@ -56,8 +68,8 @@ def test_synthetic_truth_recovered(tmp_path):
     v = np.interp(z, truth.z_m, truth.ion_velocity_m_s)  # noise-free synthetic data
     data = DataSet([OperatingPointData(point, IonVelocityProfile(z, v, sigma))])
     problem = CalibrationProblem(family, data, model)
-    settings = SearchSettings(budget=20, seed=0, num_restarts=3, raw_samples=64, progress=False,
-                              target_reduced_chi2=0.05)
+    settings = SearchSettings(budget=20, seed=seed, num_restarts=3, raw_samples=64,
+                              progress=False, target_reduced_chi2=0.05)
     res = run_search(problem, settings, tmp_path / "trials.parquet", InlineExecutor())
     best = res.best_coefficients
     assert res.best_reduced_chi2 < 3.0
@@ -67,7 +79,10 @@ def test_synthetic_truth_recovered(tmp_path):
     # (the 68 % region of one parameter, Wilks; Press et al., Numerical Recipes, 15.6),
     # at least 5 % of the bound range (common practice, no source)
     near = ok[ok["chi2"] <= ok["chi2"].min() + 1.0]
+    margins = {}
     for name, true in zip(family.names, truth_c):
         half = max(near[name].max() - near[name].min(), 0.05 * np.ptp(family.bounds[
             family.names.index(name)]))
         assert abs(best[name] - true) <= half, (name, best[name], true, half)
+        margins[name] = abs(best[name] - true) / half  # 1 = on the tolerance
+    return res, margins

@@ -130,3 +130,91 @@ def test_settings_validation():
         LikelihoodSettings(discrepancy_sigma_m_s=-1.0)
     with pytest.raises(InputDataError, match="weight for 'thrust'"):
         LikelihoodSettings(weights={"thrust": float("nan")})
+
+
+# ---------------------------------------------------------------- degrees of freedom n - p
+_L_M = 0.05
+_ZD = np.linspace(0.004, 0.046, 10)
+_SIG_D = 300.0
+
+
+def _line_profile(c, z):
+    c2 = np.atleast_2d(c)
+    return 10.0 ** (c2[:, :1] + c2[:, 1:2] * (2.0 * np.asarray(z) / _L_M - 1.0))
+
+
+def _line_model(profile, point):
+    from profshape.forward import Prediction as _P
+
+    z = np.linspace(0.0, _L_M, 51)
+    return _P("ok", z, 12000.0 + 2000.0 * np.log10(profile(z)))
+
+
+def _line_problem(v_obs, sigma=_SIG_D, scalars=None):
+    from profshape.forward import CallableModel
+    from profshape.problem import CalibrationProblem
+    from profshape.shapes import CustomFamily
+
+    fam = CustomFamily(_line_profile, {"a": (-3.0, 1.0), "b": (-2.0, 2.0)}, kind="frequency",
+                       vectorized=True)
+    ds = DataSet([OperatingPointData(OperatingPoint("p", 300.0, 5e-6),
+                                     IonVelocityProfile(_ZD, v_obs, np.full(_ZD.size, sigma)),
+                                     scalars or {})])
+    return CalibrationProblem(fam, ds, CallableModel(_line_model, grid_m=np.linspace(0, _L_M, 51)))
+
+
+def _least_squares(v_obs):
+    # v = 12000 + 2000 (a + b zeta): ordinary least squares (Bishop 2006, eq. 3.15)
+    phi = 2000.0 * np.column_stack([np.ones(_ZD.size), 2.0 * _ZD / _L_M - 1.0])
+    return np.linalg.lstsq(phi, v_obs - 12000.0, rcond=None)[0]
+
+
+def test_problem_sets_n_fitted_and_dof():
+    v = 12000.0 + 2000.0 * (-1.0 + 0.4 * (2 * _ZD / _L_M - 1))
+    prob = _line_problem(v)
+    assert prob.n_fitted == 2
+    m = prob.evaluate([-1.0, 0.3])
+    assert m.misfit.dof == _ZD.size - 2 and m.misfit.n_fitted == 2
+    assert m.misfit.reduced_chi2 == pytest.approx(m.misfit.chi2 / (_ZD.size - 2))
+    # an explicit n_fitted in the settings wins over the problem's count
+    from profshape.problem import CalibrationProblem
+
+    explicit = CalibrationProblem(prob.family, prob.dataset, prob.forward_model,
+                                  LikelihoodSettings(n_fitted=0))
+    assert explicit.evaluate([-1.0, 0.3]).misfit.dof == _ZD.size
+    # the tail probability is scipy.stats.chi2.sf(chi2, n - p)
+    assert m.misfit.tail_probability == pytest.approx(
+        stats.chi2.sf(m.misfit.chi2, _ZD.size - 2), rel=1e-12)
+
+
+def test_best_fit_chi2_follows_chi2_with_n_minus_p_dof():
+    # Linear model, correct sigmas: the least-squares chi-square follows chi2(n - p)
+    # (Bishop 2006, sec. 3.3 / any regression text); reference distribution scipy.stats.chi2.
+    rng = np.random.default_rng(11)
+    truth_v = 12000.0 + 2000.0 * (-1.0 + 0.4 * (2 * _ZD / _L_M - 1))
+    prob = _line_problem(truth_v)
+    chi2_min = []
+    for _ in range(300):
+        v = truth_v + _SIG_D * rng.standard_normal(_ZD.size)
+        p2 = _line_problem(v)
+        m = p2.evaluate(_least_squares(v)).misfit
+        chi2_min.append(m.chi2)
+        assert m.dof == _ZD.size - prob.n_fitted
+    chi2_min = np.array(chi2_min)
+    assert stats.kstest(chi2_min, stats.chi2(_ZD.size - 2).cdf).pvalue > 1e-3
+    # ... and not chi2(n): the degrees of freedom matter
+    assert stats.kstest(chi2_min, stats.chi2(_ZD.size).cdf).pvalue < 1e-3
+
+
+def test_residual_table_sums_to_chi2_and_names_positions():
+    ds = _dataset(with_current=True)
+    from profshape.likelihood import residual_table
+
+    pred = Prediction("ok", ZG, _model(ZG) + np.where(ZG > 0.03, 2000.0, 0.0),
+                      {"discharge_current": 4.0})
+    m = evaluate_misfit(ds, {"p": pred})
+    table = residual_table(ds, {"p": pred})
+    assert table["chi2"].sum() == pytest.approx(m.chi2, rel=1e-12)
+    assert len(table) == m.n_data
+    worst = table.sort_values("chi2", ascending=False).iloc[0]
+    assert worst["observable"] == "ion_velocity" and worst["z_m"] > 0.03

@@ -104,7 +104,8 @@ def test_surrogate_path_matches_closed_form(linear_case):
     problem, trials = linear_case
     mean, cov = exact_posterior(problem)
     settings = PosteriorSettings(n_walkers=16, n_steps=600, burn_in=200, n_gp_draws=4,
-                                 n_refine_draws=8, n_check_draws=8, seed=2)
+                                 n_refine_draws=8, n_check_draws=8, seed=2,
+                                 surrogate_of="log_likelihood")
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConvergenceWarning)
         result = sample_posterior(problem, trials, settings)
@@ -115,11 +116,16 @@ def test_surrogate_path_matches_closed_form(linear_case):
     assert result.map_source in ("surrogate_optimum", "best_trial")
     # The check ran the real model and agrees with the surrogate.
     assert result.check.n_ok == 8 and result.check.passed
-    # The first refinement round already agrees with the surrogate, so refinement stops
-    # there: 8 refinement + 1 MAP + 8 check runs, all logged in the trial layout.
+    # The first refinement round already agrees with the surrogate and its stated error
+    # at posterior draws is below 1 nat, so refinement stops there: 8 refinement + 1 MAP
+    # + 8 check runs, all logged in the trial layout and counted against the budget.
     refinement = result.diagnostics["refinement"]
-    assert len(refinement) == 1 and refinement[0]["disagree_fraction"] == 0.0
+    assert [r.get("n_runs", 0) for r in refinement] == [8, 0]
+    assert refinement[0]["disagree_fraction"] == 0.0
+    assert "stated error" in result.diagnostics["refine_stop_reason"]
     assert result.diagnostics["n_forward_runs"] == 17
+    assert result.diagnostics["forward_runs_by_use"] == {
+        "posterior_refine": 8, "posterior_map": 1, "posterior_check": 8}
     assert set(result.forward_runs["source"]) == {"posterior_refine_1", "posterior_map",
                                                   "posterior_check"}
     for key in ("acceptance_fraction", "autocorr_time", "effective_sample_size"):
@@ -133,7 +139,8 @@ def test_check_warns_when_surrogate_disagrees(linear_case):
     bad = trials.copy()
     bad["log_likelihood"] = bad["log_likelihood"] + 50.0
     settings = PosteriorSettings(n_walkers=8, n_steps=200, burn_in=50, n_gp_draws=0,
-                                 n_refine_rounds=0, n_check_draws=6)
+                                 n_refine_rounds=0, n_check_draws=6,
+                                 surrogate_of="log_likelihood")
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ConvergenceWarning)
         warnings.simplefilter("error", PosteriorCheckWarning)

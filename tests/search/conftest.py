@@ -51,3 +51,11 @@ def make_problem(truth=None, labels=("300V", "250V"), seed=0):
 @pytest.fixture
 def problem():
     return make_problem()
+
+
+@pytest.fixture
+def toy():
+    """The toy model's pieces, for tests that build their own problems."""
+    from types import SimpleNamespace
+
+    return SimpleNamespace(make_problem=make_problem, accel_model=accel_model, grid_m=GRID_M)
