@@ -7,8 +7,8 @@ Every error raised for bad input derives from :class:`InputDataError`, itself a
 from __future__ import annotations
 
 __all__ = [
-    "CampaignFailedError",
     "BoundWarning",
+    "CampaignFailedError",
     "ConfigError",
     "ConvergenceWarning",
     "FlatObjectiveWarning",
