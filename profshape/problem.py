@@ -11,10 +11,12 @@ from typing import Any
 
 import numpy as np
 
+from .closure import BoundClosure, ConditionClosure
 from .data import DataSet
 from .exceptions import InputDataError
 from .forward.base import ForwardModel, Prediction
 from .likelihood import LikelihoodSettings, Misfit, evaluate_misfit
+from .operating_point import OperatingPoint
 from .profile import AnomalousProfile
 from .shapes import Parameter, ShapeFamily
 from .shapes._base import check_in_bounds
@@ -59,7 +61,9 @@ class TrialOutcome:
 class CalibrationProblem:
     """What is calibrated against what.
 
-    The search space is the shape family's coefficients, followed by one
+    The search space is the shape family's coefficients, followed by the
+    closure's slopes when ``closure`` is given (coefficients that vary with
+    the operating condition, see :mod:`profshape.closure`), by one
     ``log10_scale__<label>`` per operating point when
     ``free_scale_per_point`` (the same shape, scaled per point), and by
     ``log10_discrepancy_sigma_m_s`` when ``discrepancy_bounds_m_s`` is given
@@ -76,6 +80,9 @@ class CalibrationProblem:
         Bounds of each per-point log10 scale.
     discrepancy_bounds_m_s : (float, float), optional
         Bounds [m/s] of a fitted discrepancy sigma, searched in log10.
+    closure : ConditionClosure, optional
+        Affine dependence of coefficients on features of the operating point,
+        normalised over the data set's points.
 
     Raises
     ------
@@ -92,6 +99,7 @@ class CalibrationProblem:
         free_scale_per_point: bool = False,
         scale_bounds_log10: tuple[float, float] = (-1.0, 1.0),
         discrepancy_bounds_m_s: tuple[float, float] | None = None,
+        closure: ConditionClosure | None = None,
     ) -> None:
         if not isinstance(family, ShapeFamily):
             raise InputDataError(f"family must be a ShapeFamily; got {type(family).__name__}.")
@@ -108,6 +116,18 @@ class CalibrationProblem:
         self.likelihood = likelihood or LikelihoodSettings()
         self.free_scale_per_point = bool(free_scale_per_point)
         extra: list[Parameter] = []
+        self.closure: BoundClosure | None = None
+        if closure is not None:
+            if not isinstance(closure, ConditionClosure):
+                raise InputDataError(
+                    f"closure must be a ConditionClosure; got {type(closure).__name__}.")
+            if len(dataset) < 2:
+                raise InputDataError(
+                    "closure: a profile that depends on the operating condition needs at least two "
+                    f"operating points; the data set has {len(dataset)}. Fix: add points or drop "
+                    "the closure.")
+            self.closure = closure.bind(family, dataset.operating_points)
+            extra += list(self.closure.parameters)
         if self.free_scale_per_point:
             extra += [Parameter(f"{SCALE_PREFIX}{lab}", *scale_bounds_log10, "log10(-)",
                                 f"log10 of the profile factor at {lab}") for lab in dataset.labels]
@@ -204,13 +224,35 @@ class CalibrationProblem:
     # ------------------------------------------------------------ profiles
     def profile_for(self, coefficients: Any, label: str) -> AnomalousProfile:
         """The profile run at operating point ``label`` (with its scale, if free)."""
+        return self.profile_at(coefficients, self.dataset[label].point)
+
+    def profile_at(self, coefficients: Any, point: OperatingPoint) -> AnomalousProfile:
+        """The profile at any operating point, in the data set or not.
+
+        With a closure the family coefficients follow the point's features; a
+        point outside the data set with free per-point scales gets the mean
+        of the per-point log10 scales.
+        """
         c = self.validate(coefficients)
         d = self.family.n_coefficients
-        base = self.family.profile(c[:d])
+        shape = c[:d]
+        notes: dict[str, float] = {}
+        if self.closure is not None:
+            slopes = c[d:d + self.closure.n_slopes]
+            shape, clipped = self.closure.coefficients_at(shape, slopes, point)
+            notes = {f"clipped__{name}": 1.0 for name in clipped}
+        base = self.family.profile(shape)
+        if notes:
+            base = base.scaled(1.0, **notes)
         if not self.free_scale_per_point:
             return base
-        idx = self.names.index(f"{SCALE_PREFIX}{label}")
-        return base.scaled(10.0 ** c[idx], **{f"{SCALE_PREFIX}{label}": float(c[idx])})
+        name = f"{SCALE_PREFIX}{point.label}"
+        if name in self.names and point.label in self.dataset.labels:
+            log_scale = float(c[self.names.index(name)])
+        else:
+            log_scale = float(np.mean([c[i] for i, n in enumerate(self.names)
+                                       if n.startswith(SCALE_PREFIX)]))
+        return base.scaled(10.0 ** log_scale, **{name: log_scale})
 
     def discrepancy_sigma_m_s(self, coefficients: Any) -> float:
         """The ion-velocity discrepancy sigma [m/s] for these coefficients."""
