@@ -18,7 +18,6 @@ from .settings import check_levels
 
 __all__ = ["calibrated_range", "extrapolation_reason", "predict_scalars"]
 
-_SCALE_PREFIX = "log10_scale__"
 
 
 def calibrated_range(problem: Any) -> dict[str, tuple[float, float]]:
@@ -42,6 +41,11 @@ def extrapolation_reason(problem: Any, point: OperatingPoint) -> str:
     props = {p.propellant for p in problem.dataset.operating_points}
     if point.propellant not in props:
         reasons.append(f"propellant {point.propellant!r} not in the data ({sorted(props)})")
+    closure = getattr(problem, "closure", None)
+    if closure is not None:
+        why = closure.extrapolation_reason(point)
+        if why:
+            reasons.append(why)
     return "; ".join(reasons)
 
 
@@ -49,13 +53,8 @@ def _profile_at(problem: Any, coeffs: np.ndarray, point: OperatingPoint,
                 in_data: bool) -> AnomalousProfile:
     if in_data:
         return problem.profile_for(coeffs, point.label)
-    d = problem.family.n_coefficients
-    base = problem.family.profile(coeffs[:d])
-    scale_idx = [i for i, n in enumerate(problem.names) if n.startswith(_SCALE_PREFIX)]
-    if not scale_idx:
-        return base
-    # An uncalibrated point gets the draw's mean per-point log10 scale.
-    return base.scaled(10.0 ** float(np.mean(coeffs[scale_idx])))
+    # Off the data: the closure's law at this point, and the mean per-point log10 scale.
+    return problem.profile_at(coeffs, point)
 
 
 def _run_point(problem: Any, profile: AnomalousProfile, point: OperatingPoint) -> DrawRun:
