@@ -668,7 +668,15 @@ def _assemble(acc_all, g_all, samples_all, span, plan, converged, reason, device
     ion_out = g[G.G_ION_OUT] / tw
     mom_out = g[G.G_MOM_OUT] / tw
     neutral_out = g[G.G_NEU_OUT] / tw
-    thrust = mass * area * (mom_out + u_n * neutral_out)
+    # resonant charge exchange hands the ion's momentum to a fast neutral that keeps the
+    # ion's velocity (Rapp and Francis 1962) and leaves with the propellant: it stays thrust
+    cx_mom = g[G.G_CX_MOM] / tw
+    thrust = mass * area * (mom_out + u_n * neutral_out + cx_mom)
+    # independent ion-momentum balance: outflow - anode inflow = electric force + momentum
+    # of the newly born ions - momentum into the walls - ion-neutral drag
+    mom_sources = (g[G.G_EFORCE] + g[G.G_IZ_MOM] - g[G.G_WALL_MOM] - g[G.G_DRAG_MOM]) / tw
+    mom_flow = mom_out - g[G.G_ANODE_MOM] / tw
+    mom_err = mom_flow / mom_sources - 1.0 if mom_sources > 0.0 else 0.0
     v_eff = mom_out / ion_out if ion_out > 0.0 else 0.0
     exit_energy = (
         0.5 * prop.ion_mass_kg * (g[G.G_ENERGY_OUT] / g[G.G_ION_OUT]) / e if ion_out > 0 else 0.0
@@ -715,6 +723,8 @@ def _assemble(acc_all, g_all, samples_all, span, plan, converged, reason, device
         "anode_ion_current_A": float(-e * area * g[G.G_ION_ANODE] / tw),
         "wall_ion_current_A": float(e * area * g[G.G_WALL] / tw),
         "anode_fall_V": float(sheath),
+        "charge_exchange_thrust_N": float(mass * area * cx_mom),
+        "ion_momentum_balance_error": float(mom_err),
         "max_potential_V": phi_max,
         "peak_electron_temperature_eV": float(np.max(te)),
         "ingested_mass_flow_kg_s": float(mass * area * g[G.G_INGEST] / tw),
