@@ -62,8 +62,8 @@ N_CELL_FIELDS = 11
 # Indices of the global accumulators acc_g[chunk, k].
 (G_CUR, G_CUR2, G_ION_OUT, G_MOM_OUT, G_NEU_OUT, G_IN, G_T, G_ION_ANODE, G_ENERGY_OUT,
  G_IONIZATION, G_WALL, G_INGEST, G_SHEATH, G_CUR_MIN, G_CUR_MAX, G_CX_MOM, G_DRAG_MOM,
- G_EFORCE, G_WALL_MOM, G_IZ_MOM, G_ANODE_MOM) = range(21)  # fmt: skip
-N_GLOBALS = 21
+ G_EFORCE, G_WALL_MOM, G_IZ_MOM, G_ANODE_MOM, G_BIRTH_PHI) = range(22)  # fmt: skip
+N_GLOBALS = 22
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
@@ -548,6 +548,7 @@ def march(
         ion_total = 0.0
         wall_total = 0.0
         eforce = 0.0
+        birth_phi = 0.0
         for i in range(n):
             a2[A_NE, i] += dt * ne[i]
             a2[A_GI, i] += dt * gi[i]
@@ -560,6 +561,7 @@ def march(
             a2[A_SRC, i] += dt * src0[i]  # net ion source (ionization - wall loss)
             a2[A_SEE, i] += dt * see[i]
             ion_total += ne[i] * kiz[i] * (nn[i] + nb[i])
+            birth_phi += ne[i] * kiz[i] * (nn[i] + nb[i]) * 0.5 * (phi[i] + phi[i + 1])
             wall_total += nu_w[i] * ne[i]
             eforce += ne[i] * ef[i]
         cur = _E * area * jflux
@@ -584,6 +586,7 @@ def march(
         ag[G_WALL_MOM] += dt * m_wall * dz  # ion momentum / M carried into the walls
         ag[G_IZ_MOM] += dt * m_iz * dz  # momentum / M of the newly born ions
         ag[G_ANODE_MOM] += dt * fg0  # ion momentum flux / M at the anode face
+        ag[G_BIRTH_PHI] += dt * birth_phi * dz  # ionization-weighted potential [V m^-2 s^-1]
         if cur < ag[G_CUR_MIN] or ag[G_CUR_MIN] == 0.0:
             ag[G_CUR_MIN] = cur
         if cur > ag[G_CUR_MAX]:

@@ -724,6 +724,8 @@ def _assemble(acc_all, g_all, samples_all, span, plan, converged, reason, device
         "wall_ion_current_A": float(e * area * g[G.G_WALL] / tw),
         "anode_fall_V": float(sheath),
         "charge_exchange_thrust_N": float(mass * area * cx_mom),
+        "ion_birth_potential_V": float(g[G.G_BIRTH_PHI] / g[G.G_IONIZATION])
+        if g[G.G_IONIZATION] > 0.0 else 0.0,
         "ion_momentum_balance_error": float(mom_err),
         "max_potential_V": phi_max,
         "peak_electron_temperature_eV": float(np.max(te)),

@@ -35,6 +35,10 @@ GLOBAL_DESCRIPTIONS: dict[str, str] = {
     "momentum that charge exchange hands to fast neutrals [N]",
     "charge_exchange_thrust_N": "momentum flux of the fast neutrals made by charge exchange "
     "(their share of thrust_N) [N]",
+    "ion_birth_potential_V": "ionization-weighted mean plasma potential where the ions are "
+    "born [V]; over V_d, the voltage utilization that collisionless ions kept apart would "
+    "reach without wall losses (the single cold ion fluid shares momentum among ions born "
+    "at different potentials and loses the difference) [-]",
     "ion_momentum_balance_error": "(ion momentum out - in at the anode) / (electric force + "
     "ionization momentum - wall and ion-neutral momentum losses) - 1, accumulated "
     "separately [-]",
