@@ -374,16 +374,16 @@ def march(
         _neutral_fluxes(nn, nb, u_n, u_b, fnn, fnb, muscl)
         # anode: injected flow + ions recombined on the anode + ingested gas re-emitted
         fnn[0] = gamma_in - fn[0] - fnb[0]
-        for i in range(n):
-            src0[i] = ne[i] * kiz[i] * (nn[i] + nb[i]) - nu_w[i] * ni[i]
-        # momentum bookkeeping of the step (per unit area / M), stage-averaged below:
-        # charge exchange and all ion-neutral drag, wall loss, ionization source
+        # momentum bookkeeping of the step (per unit area / M; first-stage values, the
+        # stages differ by O(dt) only): charge exchange and all ion-neutral drag, wall
+        # loss, ionization source
         m_cx = 0.0
         m_drag = 0.0
         m_wall = 0.0
         m_iz = 0.0
         fg0 = fg[0]
         for i in range(n):
+            src0[i] = ne[i] * kiz[i] * (nn[i] + nb[i]) - nu_w[i] * ni[i]
             rel = gi[i] - ni[i] * u_n
             if rel > 0.0:  # fast neutrals moving downstream leave with the exhaust
                 m_cx += k_cx[i] * rel
@@ -406,19 +406,6 @@ def march(
             _ion_fluxes(ni1, gi1, cs, muscl, fn, fg, uw, sn, su, 0.6065306597126334)
             _neutral_fluxes(nn1, nb1, u_n, u_b, fnn, fnb, muscl)
             fnn[0] = gamma_in - fn[0] - fnb[0]
-            m_cx *= 0.5
-            m_drag *= 0.5
-            m_wall *= 0.5
-            m_iz *= 0.5
-            fg0 *= 0.5
-            fg0 += 0.5 * fg[0]
-            for i in range(n):
-                rel = gi1[i] - ni1[i] * u_n
-                if rel > 0.0:
-                    m_cx += 0.5 * k_cx[i] * rel
-                m_drag += 0.5 * k_in[i] * rel
-                m_wall += 0.5 * nu_w[i] * gi1[i]
-                m_iz += 0.5 * ne[i] * kiz[i] * (nn1[i] + nb1[i]) * u_n
             for i in range(n):
                 dnn, dnb, dni, dgi = _heavy_rhs(i, nn1, nb1, ni1, gi1, ne, ef, kiz, nu_w,
                                                 k_in, u_n, e_over_m, fn, fg, fnn, fnb,
@@ -543,8 +530,10 @@ def march(
         if c >= n_chunks:
             c = n_chunks - 1
         a2 = acc[c]
-        for i in range(n):  # ion density at the end of the chunk (overwritten each step)
-            a2[A_NI_END, i] = ni[i]
+        t_next = t + dt
+        if t_next >= t_end * (1.0 - 1e-15) or int((t_next - t_start) / chunk_dt) != c:
+            for i in range(n):  # ion density at the end of the chunk (its last step)
+                a2[A_NI_END, i] = ni[i]
         ion_total = 0.0
         wall_total = 0.0
         eforce = 0.0
