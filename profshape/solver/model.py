@@ -101,10 +101,13 @@ averaging range holds ``min_oscillation_periods`` periods (status
 converged run whose potential rises above V_d + Delta by more than
 ``energy_bound_tolerance`` V_d plus a pre-sheath of 2 T_e (anode), whose ions
 exceed sqrt(2 e phi_max / M) by that margin, or whose exit ion energy exceeds
-V_d + Delta by it, is "failed" with the reason (cells kept). Balances are accumulated independently: ions
-created (volume integral) against ions leaving through the anode, the cathode
-plane and the walls, and the time-averaged ion continuity per cell from face
-fluxes and sources.
+V_d + Delta by it, is "failed" with the reason (cells kept); so is a run whose
+discharge went out (mass utilization below 1 % or an anode efficiency above 1).
+Balances are accumulated independently: ions created (volume integral) against
+ions leaving through the anode, the cathode plane and the walls; the time-averaged
+ion continuity per cell from face fluxes and sources; the ion momentum (outflow
+against electric force, ionization, wall and ion-neutral terms). The thrust
+keeps the momentum that charge exchange hands to fast downstream neutrals.
 """
 
 from __future__ import annotations
@@ -472,6 +475,9 @@ _OSCILLATION_THRESHOLD = 0.01
 _MAX_ALLOWANCE = 2.0
 #: Rise of the potential above the anode sheath edge allowed for the pre-sheath [T_e].
 _PRESHEATH_RISE_TE = 2.0
+#: Mass utilization below which the discharge counts as gone out (a self-sustained
+#: discharge ionizes far more than 1 % of its flow; common practice, no source).
+_EXTINCT_MASS_UTILIZATION = 0.01
 
 
 def _upward_crossings(x: np.ndarray, band: float) -> np.ndarray:
@@ -784,6 +790,18 @@ def _assemble(acc_all, g_all, samples_all, span, plan, converged, reason, device
             f"sqrt(2 e phi_max / M) = {u_bound:.4g} m/s, potential peak {phi_max:.4g} V "
             f"against V_d + anode fall = {edge:.4g} V (allowed rise {hump_allowed:.3g} V), "
             f"exit ion energy {exit_energy:.4g} eV (margin {margin:.0%}); {reason}"
+        )
+    mass_util = float(glob["mass_utilization"])
+    eta_a = float(glob["anode_efficiency"])
+    if status != "failed" and (mass_util < _EXTINCT_MASS_UTILIZATION or eta_a > 1.0):
+        # a discharge that went out (plasma at the density floor, a current of micro- to
+        # milliamperes) keeps "converging" on the neutral flow; its efficiency T^2 / (2 mdot P)
+        # then exceeds 1 (thermal neutral momentum over a vanishing power): never usable
+        status = "failed"
+        reason = (
+            f"discharge went out: mass utilization {mass_util:.3g} (below "
+            f"{_EXTINCT_MASS_UTILIZATION:g}) or anode efficiency {eta_a:.3g} above 1, discharge "
+            f"current {current:.3g} A; {reason}"
         )
     glob["status"] = status
     glob["converged"] = status in ("ok", "oscillating")
