@@ -55,6 +55,10 @@ def main(voltages: tuple[float, ...] = (300.0, 600.0)) -> None:
                   f"{g['anode_fall_V']:.1f} V, wall ion current {g['wall_ion_current_A']:.2f} A, "
                   f"rms {g['oscillation_relative_amplitude']:.1%}, peak to peak "
                   f"{g['oscillation_peak_to_peak_A']:.3f} A, {g['oscillation_frequency_Hz']:.3g} Hz")
+        if "ion_birth_potential_V" in g:  # outputs added after issue 11
+            print(f"      charge-exchange share of thrust {1e3 * g['charge_exchange_thrust_N']:.2f} mN, "
+                  f"ion birth potential {g['ion_birth_potential_V'] / v:.3f} V_d, ion momentum "
+                  f"balance {g['ion_momentum_balance_error']:+.2e}")
         sys.stdout.flush()
 
 

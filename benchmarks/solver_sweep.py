@@ -11,7 +11,8 @@ grid (160 / 320 / 640 cells by default). Every run must end "ok",
 "oscillating", "not_converged" or "failed" with a reason; the script counts the
 statuses and lists every "ok"/"oscillating" run that breaks the ion energy
 bound (potential above V_d + anode fall + 2 % + 2 T_e, an ion faster than
-sqrt(2 e phi_max / M), or an exit energy above e (V_d + fall)) or whose "ok" current swings by more than 1 % rms, and
+sqrt(2 e phi_max / M), or an exit energy above e (V_d + fall)) or whose "ok" current swings by more than 1 % rms, or whose discharge went out (anode
+efficiency above 1, mass utilization below 1 %), and
 every run that raised. ``--quick`` keeps the corners of the ranges only. The CI
 test ``tests/solver/test_solver_sweep.py`` runs a small subset.
 """
@@ -52,6 +53,9 @@ def check(result, point) -> str:
         return f"ion speed {np.max(result.ion_velocity_m_s):.0f} above the bound {v_max:.0f}"
     if g["exit_ion_energy_eV"] > 1.02 * edge:
         return f"exit ion energy {g['exit_ion_energy_eV']:.1f} eV above e (V_d + fall)"
+    if g["anode_efficiency"] > 1.0 or g["mass_utilization"] < 0.01:
+        return (f"discharge gone out: anode efficiency {g['anode_efficiency']:.3g}, mass "
+                f"utilization {g['mass_utilization']:.3g}")
     if result.status == "ok" and g["oscillation_relative_amplitude"] > 0.01:
         return f"'ok' with {g['oscillation_relative_amplitude']:.1%} rms"
     if result.status == "oscillating" and g["oscillation_periods"] < 5:

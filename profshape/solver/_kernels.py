@@ -61,8 +61,9 @@ A_NE, A_GI, A_NN, A_TE, A_PHI, A_EF, A_NU, A_FN, A_SRC, A_SEE, A_NI_END = range(
 N_CELL_FIELDS = 11
 # Indices of the global accumulators acc_g[chunk, k].
 (G_CUR, G_CUR2, G_ION_OUT, G_MOM_OUT, G_NEU_OUT, G_IN, G_T, G_ION_ANODE, G_ENERGY_OUT,
- G_IONIZATION, G_WALL, G_INGEST, G_SHEATH, G_CUR_MIN, G_CUR_MAX) = range(15)  # fmt: skip
-N_GLOBALS = 15
+ G_IONIZATION, G_WALL, G_INGEST, G_SHEATH, G_CUR_MIN, G_CUR_MAX, G_CX_MOM, G_DRAG_MOM,
+ G_EFORCE, G_WALL_MOM, G_IZ_MOM, G_ANODE_MOM, G_BIRTH_PHI) = range(22)  # fmt: skip
+N_GLOBALS = 22
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
@@ -215,6 +216,7 @@ def march(
     wslope = np.empty(n)  # d(wall power per electron)/dT_e [1/s]
     see = np.empty(n)
     k_in = np.empty(n)  # ion-neutral momentum-transfer frequency [1/s]
+    k_cx = np.empty(n)  # its resonant charge-exchange part [1/s]
     p = np.empty(n)
     dp = np.empty(n)
     ef = np.empty(n)
@@ -314,7 +316,8 @@ def march(
                 sig_cx = cex_a - cex_b * math.log10(e_rel)
                 if sig_cx < 0.0:
                     sig_cx = 0.0
-                k_in[i] = (nn[i] + nb[i]) * (sig_cx * g + k_elastic)
+                k_cx[i] = (nn[i] + nb[i]) * sig_cx * g
+                k_in[i] = k_cx[i] + (nn[i] + nb[i]) * k_elastic
         if amax > u_guard:
             k_bad = 0
             for i in range(n):
@@ -371,8 +374,22 @@ def march(
         _neutral_fluxes(nn, nb, u_n, u_b, fnn, fnb, muscl)
         # anode: injected flow + ions recombined on the anode + ingested gas re-emitted
         fnn[0] = gamma_in - fn[0] - fnb[0]
+        # momentum bookkeeping of the step (per unit area / M; first-stage values, the
+        # stages differ by O(dt) only): charge exchange and all ion-neutral drag, wall
+        # loss, ionization source
+        m_cx = 0.0
+        m_drag = 0.0
+        m_wall = 0.0
+        m_iz = 0.0
+        fg0 = fg[0]
         for i in range(n):
             src0[i] = ne[i] * kiz[i] * (nn[i] + nb[i]) - nu_w[i] * ni[i]
+            rel = gi[i] - ni[i] * u_n
+            if rel > 0.0:  # fast neutrals moving downstream leave with the exhaust
+                m_cx += k_cx[i] * rel
+            m_drag += k_in[i] * rel
+            m_wall += nu_w[i] * gi[i]
+            m_iz += ne[i] * kiz[i] * (nn[i] + nb[i]) * u_n
         for i in range(n):
             dnn, dnb, dni, dgi = _heavy_rhs(i, nn, nb, ni, gi, ne, ef, kiz, nu_w, k_in, u_n,
                                             e_over_m, fn, fg, fnn, fnb, inv_dz)  # fmt: skip
@@ -513,10 +530,14 @@ def march(
         if c >= n_chunks:
             c = n_chunks - 1
         a2 = acc[c]
-        for i in range(n):  # ion density at the end of the chunk (overwritten each step)
-            a2[A_NI_END, i] = ni[i]
+        t_next = t + dt
+        if t_next >= t_end * (1.0 - 1e-15) or int((t_next - t_start) / chunk_dt) != c:
+            for i in range(n):  # ion density at the end of the chunk (its last step)
+                a2[A_NI_END, i] = ni[i]
         ion_total = 0.0
         wall_total = 0.0
+        eforce = 0.0
+        birth_phi = 0.0
         for i in range(n):
             a2[A_NE, i] += dt * ne[i]
             a2[A_GI, i] += dt * gi[i]
@@ -529,7 +550,9 @@ def march(
             a2[A_SRC, i] += dt * src0[i]  # net ion source (ionization - wall loss)
             a2[A_SEE, i] += dt * see[i]
             ion_total += ne[i] * kiz[i] * (nn[i] + nb[i])
+            birth_phi += ne[i] * kiz[i] * (nn[i] + nb[i]) * 0.5 * (phi[i] + phi[i + 1])
             wall_total += nu_w[i] * ne[i]
+            eforce += ne[i] * ef[i]
         cur = _E * area * jflux
         ag = acc_g[c]
         ag[G_CUR] += dt * cur
@@ -546,6 +569,13 @@ def march(
         ag[G_WALL] += dt * wall_total * dz
         ag[G_INGEST] += dt * gamma_bg
         ag[G_SHEATH] += dt * sheath[0]
+        ag[G_CX_MOM] += dt * m_cx * dz  # ion momentum / M handed to charge-exchange neutrals
+        ag[G_DRAG_MOM] += dt * m_drag * dz  # all ion-neutral momentum transfer / M
+        ag[G_EFORCE] += dt * e_over_m * eforce * dz  # electric force on the ions / M
+        ag[G_WALL_MOM] += dt * m_wall * dz  # ion momentum / M carried into the walls
+        ag[G_IZ_MOM] += dt * m_iz * dz  # momentum / M of the newly born ions
+        ag[G_ANODE_MOM] += dt * fg0  # ion momentum flux / M at the anode face
+        ag[G_BIRTH_PHI] += dt * birth_phi * dz  # ionization-weighted potential [V m^-2 s^-1]
         if cur < ag[G_CUR_MIN] or ag[G_CUR_MIN] == 0.0:
             ag[G_CUR_MIN] = cur
         if cur > ag[G_CUR_MAX]:

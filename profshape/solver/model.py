@@ -101,10 +101,13 @@ averaging range holds ``min_oscillation_periods`` periods (status
 converged run whose potential rises above V_d + Delta by more than
 ``energy_bound_tolerance`` V_d plus a pre-sheath of 2 T_e (anode), whose ions
 exceed sqrt(2 e phi_max / M) by that margin, or whose exit ion energy exceeds
-V_d + Delta by it, is "failed" with the reason (cells kept). Balances are accumulated independently: ions
-created (volume integral) against ions leaving through the anode, the cathode
-plane and the walls, and the time-averaged ion continuity per cell from face
-fluxes and sources.
+V_d + Delta by it, is "failed" with the reason (cells kept); so is a run whose
+discharge went out (mass utilization below 1 % or an anode efficiency above 1).
+Balances are accumulated independently: ions created (volume integral) against
+ions leaving through the anode, the cathode plane and the walls; the time-averaged
+ion continuity per cell from face fluxes and sources; the ion momentum (outflow
+against electric force, ionization, wall and ion-neutral terms). The thrust
+keeps the momentum that charge exchange hands to fast downstream neutrals.
 """
 
 from __future__ import annotations
@@ -472,6 +475,9 @@ _OSCILLATION_THRESHOLD = 0.01
 _MAX_ALLOWANCE = 2.0
 #: Rise of the potential above the anode sheath edge allowed for the pre-sheath [T_e].
 _PRESHEATH_RISE_TE = 2.0
+#: Mass utilization below which the discharge counts as gone out (a self-sustained
+#: discharge ionizes far more than 1 % of its flow; common practice, no source).
+_EXTINCT_MASS_UTILIZATION = 0.01
 
 
 def _upward_crossings(x: np.ndarray, band: float) -> np.ndarray:
@@ -668,7 +674,15 @@ def _assemble(acc_all, g_all, samples_all, span, plan, converged, reason, device
     ion_out = g[G.G_ION_OUT] / tw
     mom_out = g[G.G_MOM_OUT] / tw
     neutral_out = g[G.G_NEU_OUT] / tw
-    thrust = mass * area * (mom_out + u_n * neutral_out)
+    # resonant charge exchange hands the ion's momentum to a fast neutral that keeps the
+    # ion's velocity (Rapp and Francis 1962) and leaves with the propellant: it stays thrust
+    cx_mom = g[G.G_CX_MOM] / tw
+    thrust = mass * area * (mom_out + u_n * neutral_out + cx_mom)
+    # independent ion-momentum balance: outflow - anode inflow = electric force + momentum
+    # of the newly born ions - momentum into the walls - ion-neutral drag
+    mom_sources = (g[G.G_EFORCE] + g[G.G_IZ_MOM] - g[G.G_WALL_MOM] - g[G.G_DRAG_MOM]) / tw
+    mom_flow = mom_out - g[G.G_ANODE_MOM] / tw
+    mom_err = mom_flow / mom_sources - 1.0 if mom_sources > 0.0 else 0.0
     v_eff = mom_out / ion_out if ion_out > 0.0 else 0.0
     exit_energy = (
         0.5 * prop.ion_mass_kg * (g[G.G_ENERGY_OUT] / g[G.G_ION_OUT]) / e if ion_out > 0 else 0.0
@@ -715,6 +729,10 @@ def _assemble(acc_all, g_all, samples_all, span, plan, converged, reason, device
         "anode_ion_current_A": float(-e * area * g[G.G_ION_ANODE] / tw),
         "wall_ion_current_A": float(e * area * g[G.G_WALL] / tw),
         "anode_fall_V": float(sheath),
+        "charge_exchange_thrust_N": float(mass * area * cx_mom),
+        "ion_birth_potential_V": float(g[G.G_BIRTH_PHI] / g[G.G_IONIZATION])
+        if g[G.G_IONIZATION] > 0.0 else 0.0,
+        "ion_momentum_balance_error": float(mom_err),
         "max_potential_V": phi_max,
         "peak_electron_temperature_eV": float(np.max(te)),
         "ingested_mass_flow_kg_s": float(mass * area * g[G.G_INGEST] / tw),
@@ -772,6 +790,18 @@ def _assemble(acc_all, g_all, samples_all, span, plan, converged, reason, device
             f"sqrt(2 e phi_max / M) = {u_bound:.4g} m/s, potential peak {phi_max:.4g} V "
             f"against V_d + anode fall = {edge:.4g} V (allowed rise {hump_allowed:.3g} V), "
             f"exit ion energy {exit_energy:.4g} eV (margin {margin:.0%}); {reason}"
+        )
+    mass_util = float(glob["mass_utilization"])
+    eta_a = float(glob["anode_efficiency"])
+    if status != "failed" and (mass_util < _EXTINCT_MASS_UTILIZATION or eta_a > 1.0):
+        # a discharge that went out (plasma at the density floor, a current of micro- to
+        # milliamperes) keeps "converging" on the neutral flow; its efficiency T^2 / (2 mdot P)
+        # then exceeds 1 (thermal neutral momentum over a vanishing power): never usable
+        status = "failed"
+        reason = (
+            f"discharge went out: mass utilization {mass_util:.3g} (below "
+            f"{_EXTINCT_MASS_UTILIZATION:g}) or anode efficiency {eta_a:.3g} above 1, discharge "
+            f"current {current:.3g} A; {reason}"
         )
     glob["status"] = status
     glob["converged"] = status in ("ok", "oscillating")

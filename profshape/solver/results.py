@@ -31,7 +31,17 @@ CELL_COLUMNS: dict[str, str] = {
 GLOBAL_DESCRIPTIONS: dict[str, str] = {
     "discharge_current_A": "time-averaged discharge current [A]",
     "discharge_power_W": "discharge voltage times current [W]",
-    "thrust_N": "ion + neutral momentum flux through the cathode plane [N]",
+    "thrust_N": "ion + neutral momentum flux through the cathode plane, including the "
+    "momentum that charge exchange hands to fast neutrals [N]",
+    "charge_exchange_thrust_N": "momentum flux of the fast neutrals made by charge exchange "
+    "(their share of thrust_N) [N]",
+    "ion_birth_potential_V": "ionization-weighted mean plasma potential where the ions are "
+    "born [V]; over V_d, the voltage utilization that collisionless ions kept apart would "
+    "reach without wall losses (the single cold ion fluid shares momentum among ions born "
+    "at different potentials and loses the difference) [-]",
+    "ion_momentum_balance_error": "(ion momentum out - in at the anode) / (electric force + "
+    "ionization momentum - wall and ion-neutral momentum losses) - 1, accumulated "
+    "separately [-]",
     "specific_impulse_s": "thrust / (anode mass flow * g0) [s]",
     "anode_efficiency": "thrust^2 / (2 * mass flow * discharge power) [-]",
     "mass_utilization": "ion mass flow through the cathode plane / anode mass flow [-]",

@@ -145,8 +145,9 @@ def test_typical_xenon_case_peak_electron_temperature(demo_result):
     assert 20.0 <= demo_result.globals["peak_electron_temperature_eV"] <= 40.0
 
 
-@pytest.mark.xfail(strict=True, reason="known gap (issue 11): ionization in the acceleration "
-                   "zone and plume lowers the cold-fluid mean exit energy")
+@pytest.mark.xfail(strict=True, reason="known gap: more than 40 % of the ions are born in the "
+                   "acceleration zone (birth potential 0.78 V_d) and the single cold ion fluid "
+                   "shares momentum among them, losing the rest of their energy")
 def test_typical_xenon_case_voltage_utilization(demo_result):
     # common practice, no source (REFERENCES): voltage utilization 0.85-0.95 (0.7 here)
     assert 0.70 <= demo_result.globals["voltage_utilization"] <= 1.0
