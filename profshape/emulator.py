@@ -66,7 +66,19 @@ composite functions", ICML).
 
 The inputs are the unit-cube coordinates of the coefficients (``(n, d)``);
 the emulator knows nothing of the calibration: build ``Y`` and the misfit
-from it with :class:`profshape.output_layout.OutputLayout`.
+from it with :class:`profshape.output_layout.OutputLayout`. For a
+calibration, as the search does (``Search.emulator_`` is such a fit)::
+
+    from profshape.output_layout import OutputLayout
+    layout = OutputLayout.from_problem(problem)
+    ok = trials[trials["status"] == "ok"]
+    U = ok[[f"u__{n}" for n in problem.names]].to_numpy()
+    Y = np.array([layout.vector_from_json(p) for p in ok["predictions"]])
+    em = OutputEmulator(residual_tolerance=0.01).fit(U, Y, scale=layout.scale)
+    mean, var = em.predict(U_new)                         # (k, m) each
+    # log-likelihood with the emulator's variance added to the data variance
+    # (the slope columns enter through the position uncertainty, at their mean)
+    loglike = layout.log_likelihood(mean, extra_variance=layout.values(var))
 """
 
 from __future__ import annotations
