@@ -210,8 +210,8 @@ class OutputEmulator:
         OutputEmulator
             ``self``.
         """
-        X = np.asarray(X_unit, dtype=float)
-        Yn = np.asarray(Y, dtype=float)
+        X = np.array(X_unit, dtype=float)  # copies: torch wants writable arrays
+        Yn = np.array(Y, dtype=float)
         if X.ndim != 2 or Yn.ndim != 2 or X.shape[0] != Yn.shape[0]:
             raise InputDataError(
                 f"OutputEmulator.fit: X_unit must be (n, d) and Y (n, m) with the same n; got "
