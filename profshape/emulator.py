@@ -366,7 +366,7 @@ class OutputEmulator:
             In output units (and output units squared); ``var`` includes the
             residual variance of the discarded components.
         """
-        X = torch.as_tensor(np.asarray(X_unit, dtype=float).reshape(-1, self.train_X_.shape[1]),
+        X = torch.as_tensor(np.array(X_unit, dtype=float).reshape(-1, self.train_X_.shape[1]),
                             dtype=DTYPE)
         with torch.no_grad():
             post = self.posterior(X)
@@ -374,7 +374,7 @@ class OutputEmulator:
 
     def sample(self, X_unit: Any, n_samples: int, seed: int = 0) -> np.ndarray:
         """Joint draws of the outputs at ``X_unit`` (``(k, d)``): shape ``(n_samples, k, m)``."""
-        X = torch.as_tensor(np.asarray(X_unit, dtype=float).reshape(-1, self.train_X_.shape[1]),
+        X = torch.as_tensor(np.array(X_unit, dtype=float).reshape(-1, self.train_X_.shape[1]),
                             dtype=DTYPE)
         with torch.no_grad(), torch.random.fork_rng():
             torch.manual_seed(int(seed))
