@@ -66,7 +66,19 @@ composite functions", ICML).
 
 The inputs are the unit-cube coordinates of the coefficients (``(n, d)``);
 the emulator knows nothing of the calibration: build ``Y`` and the misfit
-from it with :class:`profshape.output_layout.OutputLayout`.
+from it with :class:`profshape.output_layout.OutputLayout`. For a
+calibration, as the search does (``Search.emulator_`` is such a fit)::
+
+    from profshape.output_layout import OutputLayout
+    layout = OutputLayout.from_problem(problem)
+    ok = trials[trials["status"] == "ok"]
+    U = ok[[f"u__{n}" for n in problem.names]].to_numpy()
+    Y = np.array([layout.vector_from_json(p) for p in ok["predictions"]])
+    em = OutputEmulator(residual_tolerance=0.01).fit(U, Y, scale=layout.scale)
+    mean, var = em.predict(U_new)                         # (k, m) each
+    # log-likelihood with the emulator's variance added to the data variance
+    # (the slope columns enter through the position uncertainty, at their mean)
+    loglike = layout.log_likelihood(mean, extra_variance=layout.values(var))
 """
 
 from __future__ import annotations
@@ -198,8 +210,8 @@ class OutputEmulator:
         OutputEmulator
             ``self``.
         """
-        X = np.asarray(X_unit, dtype=float)
-        Yn = np.asarray(Y, dtype=float)
+        X = np.array(X_unit, dtype=float)  # copies: torch wants writable arrays
+        Yn = np.array(Y, dtype=float)
         if X.ndim != 2 or Yn.ndim != 2 or X.shape[0] != Yn.shape[0]:
             raise InputDataError(
                 f"OutputEmulator.fit: X_unit must be (n, d) and Y (n, m) with the same n; got "
@@ -354,7 +366,7 @@ class OutputEmulator:
             In output units (and output units squared); ``var`` includes the
             residual variance of the discarded components.
         """
-        X = torch.as_tensor(np.asarray(X_unit, dtype=float).reshape(-1, self.train_X_.shape[1]),
+        X = torch.as_tensor(np.array(X_unit, dtype=float).reshape(-1, self.train_X_.shape[1]),
                             dtype=DTYPE)
         with torch.no_grad():
             post = self.posterior(X)
@@ -362,7 +374,7 @@ class OutputEmulator:
 
     def sample(self, X_unit: Any, n_samples: int, seed: int = 0) -> np.ndarray:
         """Joint draws of the outputs at ``X_unit`` (``(k, d)``): shape ``(n_samples, k, m)``."""
-        X = torch.as_tensor(np.asarray(X_unit, dtype=float).reshape(-1, self.train_X_.shape[1]),
+        X = torch.as_tensor(np.array(X_unit, dtype=float).reshape(-1, self.train_X_.shape[1]),
                             dtype=DTYPE)
         with torch.no_grad(), torch.random.fork_rng():
             torch.manual_seed(int(seed))

@@ -155,14 +155,16 @@ job_directives = []               # extra job-script header options, e.g. ["--co
 # ------------------------------------------------------------------ the posterior
 [posterior]
 enabled = true
-# n_walkers = 24                  # ensemble sampler walkers
-# n_steps = 1200                  # steps per walker
-# burn_in = 400                   # steps dropped
+# n_walkers = 32                  # ensemble sampler walkers
+# n_steps = 10000                 # most steps per walker (chains stop on the autocorrelation rule)
+# burn_in = 500                   # steps dropped
 # thin = 1
 # n_gp_draws = 8                  # Gaussian-process realisations sampled (0: the GP mean only)
 # n_refine_rounds = 3             # rounds of forward runs where the posterior mass sits
 # n_refine_draws = 16             # forward runs per refinement round
 # n_check_draws = 16              # posterior draws re-run for the predictive check
+# forward_budget = 32             # most forward runs of the posterior sampling (refinement, MAP, check)
+# refine_threshold_nats = 1.0     # refine until the emulator's log-likelihood error is below this
 n_band_draws = 24                 # posterior draws run for the bands and predictions
 band_levels = [0.68, 0.95]
 # seed = 0                        # default: the search's seed
