@@ -84,6 +84,7 @@ def finish(cal: Any, result: Any, out: Path, executor: Any = None,
         "n_trials": result.n_trials,
         "n_failed": result.n_failed,
         "stop_detail": getattr(result, "stop_detail", ""),
+        "on_bounds": [h.to_dict() for h in getattr(result, "on_bounds", ())],
         "finished": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime()),
     }
     _atomic_text(out / SEARCH_FILE, json.dumps(_clean(search_info), indent=2))
@@ -264,6 +265,7 @@ def write_outputs(out: str | Path, cal: Any = None) -> dict[str, Any]:
         "n_failed": int((trials["status"] != "ok").sum()),
         "stop_reason": search_info.get("stop_reason", "not finished (no search.json)"),
         "stop_detail": search_info.get("stop_detail") or "",
+        "on_bounds": search_info.get("on_bounds") or [],
         "trial_log": "trials.parquet",
         "posterior": None,
         "bands_files": {},
@@ -472,9 +474,13 @@ def _report_markdown(summary: dict[str, Any], posterior: Any, bands: Any,
         lines.append(f"| `{name}` | {_fmt(value, 5)} | {_fmt(r.get('median'), 5)} | {interval} |")
     if posterior is not None:
         d = posterior.diagnostics
+        how = ("on the forward model itself" if d.get("method") == "exact" else
+               "on the output emulator, its predictive variance added to the data variance"
+               if d.get("surrogate_of", "outputs") == "outputs" else
+               "on the Gaussian-process surrogate of the log-likelihood")
         lines += ["", "## Posterior", "",
-                  f"Sampled on the Gaussian-process surrogate of the log-likelihood "
-                  f"(method: {d.get('method', 'n/a')}); MAP from {posterior.map_source}.",
+                  f"Sampled {how} (method: {d.get('method', 'n/a')}); MAP from "
+                  f"{posterior.map_source}.",
                   f"Acceptance fraction: {_fmt(d.get('acceptance_fraction'))}; "
                   f"integrated autocorrelation time: {_fmt(d.get('autocorr_time_steps'))} steps; "
                   f"effective sample size: {_fmt(d.get('effective_sample_size_total'))} "

@@ -407,6 +407,7 @@ def sample_posterior(
 
     _warn_diagnostics(diag)
     diag["method"] = settings.method
+    diag["surrogate_of"] = settings.surrogate_of
     diag["n_forward_runs"] = n_forward
     diag["n_gp_trials"] = len(ll_all)
     diag["refinement"] = refine_log
