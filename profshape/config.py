@@ -149,6 +149,8 @@ _POINT_SCHEMA: dict[str, Any] = {
     "anode_mass_flow_kg_s": (_NUMBER, True, None),
     "propellant": ((str,), False, None),  # None: xenon, with a warning
     "magnetic_field_scale": (_NUMBER, False, 1.0),
+    "background_pressure_Pa": (_NUMBER, False, 0.0),
+    "background_temperature_K": (_NUMBER, False, 300.0),
     "ion_velocity_file": ((str,), False, None),
     "scalars": {"*": None},
 }

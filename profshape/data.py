@@ -7,7 +7,9 @@ parquet (``.parquet``), with these columns (units in the names):
 
 ``operating_points``
     ``label``, ``discharge_voltage_V``, ``anode_mass_flow_kg_s``,
-    ``propellant``, ``magnetic_field_scale``.
+    ``propellant``, ``magnetic_field_scale``; optionally ``background_pressure_Pa``
+    (facility background pressure [Pa], default 0: space) and
+    ``background_temperature_K`` (default 300 K).
 ``ion_velocity``
     ``label``, ``z_m`` (axial position from the anode [m]),
     ``ion_velocity_m_s`` [m/s], ``sigma_ion_velocity_m_s`` (1-sigma [m/s]),
@@ -67,6 +69,7 @@ _VELOCITY_COLUMNS = ("z_m", "ion_velocity_m_s", "sigma_ion_velocity_m_s")
 _OPTIONAL_VELOCITY_COLUMNS = ("sigma_z_m",)
 _POINT_COLUMNS = ("label", "discharge_voltage_V", "anode_mass_flow_kg_s", "propellant",
                   "magnetic_field_scale")
+_OPTIONAL_POINT_COLUMNS = ("background_pressure_Pa", "background_temperature_K")
 _SCALAR_COLUMNS = ("label", "name", "value", "sigma", "unit")
 
 #: Largest plausible axial position [m]; larger values are most likely millimetres.
@@ -403,7 +406,8 @@ class DataSet(Sequence[OperatingPointData]):
     # ------------------------------------------------------------------ tables
     def tables(self) -> dict[str, pd.DataFrame]:
         """The three documented tables: operating_points, ion_velocity, scalars."""
-        ops = pd.DataFrame([p.point.to_dict() for p in self._points], columns=list(_POINT_COLUMNS))
+        ops = pd.DataFrame([p.point.to_dict() for p in self._points],
+                           columns=[*_POINT_COLUMNS, *_OPTIONAL_POINT_COLUMNS])
         vel = [p.ion_velocity.to_frame().assign(label=p.label) for p in self._points
                if p.ion_velocity is not None]
         vel_df = (pd.concat(vel, ignore_index=True) if vel
@@ -431,6 +435,8 @@ class DataSet(Sequence[OperatingPointData]):
         folder.mkdir(parents=True, exist_ok=True)
         paths = {}
         for name, df in self.tables().items():
+            if df.empty and name != "operating_points":
+                continue  # an empty table would be refused on reading: leave it out
             path = folder / f"{name}.{format}"
             if format == "csv":
                 df.to_csv(path, index=False)
@@ -568,7 +574,7 @@ def load_dataset(folder: str | Path) -> DataSet:
             "needs its operating points."
         )
     ops = _read_table(op_path)
-    _check_columns(ops, op_path, _POINT_COLUMNS)
+    _check_columns(ops, op_path, _POINT_COLUMNS, _OPTIONAL_POINT_COLUMNS)
     points: dict[str, OperatingPoint] = {}
     for i, row in enumerate(ops.to_dict("records"), start=1):
         try:
@@ -578,6 +584,7 @@ def load_dataset(folder: str | Path) -> DataSet:
                 anode_mass_flow_kg_s=row["anode_mass_flow_kg_s"],
                 propellant=str(row["propellant"]),
                 magnetic_field_scale=row["magnetic_field_scale"],
+                **{c: row[c] for c in _OPTIONAL_POINT_COLUMNS if c in row and pd.notna(row[c])},
             )
         except InputDataError as exc:
             raise InputDataError(f"{op_path}, row {i}: {exc}") from None

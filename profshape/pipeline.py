@@ -119,6 +119,8 @@ def _dataset(cfg: CalibrationConfig) -> DataSet:
                 anode_mass_flow_kg_s=entry["anode_mass_flow_kg_s"],
                 propellant=_propellant(cfg, key, entry),
                 magnetic_field_scale=entry["magnetic_field_scale"],
+                background_pressure_Pa=entry["background_pressure_Pa"],
+                background_temperature_K=entry["background_temperature_K"],
             )
         except InputDataError as exc:
             raise cfg.error(key, str(exc)) from None
@@ -154,7 +156,9 @@ def _prediction_points(cfg: CalibrationConfig) -> list[OperatingPoint]:
             out.append(OperatingPoint(entry["label"], entry["discharge_voltage_V"],
                                       entry["anode_mass_flow_kg_s"],
                                       _propellant(cfg, f"posterior.predict[{i}]", entry),
-                                      entry["magnetic_field_scale"]))
+                                      entry["magnetic_field_scale"],
+                                      background_pressure_Pa=entry["background_pressure_Pa"],
+                                      background_temperature_K=entry["background_temperature_K"]))
         except InputDataError as exc:
             raise cfg.error(f"posterior.predict[{i}]", str(exc)) from None
     return out

@@ -34,6 +34,8 @@ discharge_voltage_V = 300.0
 anode_mass_flow_kg_s = 4.5e-6
 propellant = "xenon"              # "xenon", "krypton", "argon" (names or symbols)
 magnetic_field_scale = 1.0        # multiplies the device's field at this point
+# background_pressure_Pa = 0.0    # facility background pressure [Pa]; 0 = space (default)
+# background_temperature_K = 300.0   # its gas temperature [K]
 ion_velocity_file = "lif_300V.csv"   # columns z_m, ion_velocity_m_s, sigma_ion_velocity_m_s[, sigma_z_m]
 # measured scalars (optional): value, sigma, unit (SI)
 scalars.discharge_current = { value = 5.5, sigma = 0.1, unit = "A" }

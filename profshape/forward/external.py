@@ -11,7 +11,8 @@ Inputs written into the work folder
 ``input.json``
     ``{"format": "profshape-external-1",
     "operating_point": {"label", "discharge_voltage_V", "anode_mass_flow_kg_s",
-    "propellant", "magnetic_field_scale"},
+    "propellant", "magnetic_field_scale", "background_pressure_Pa",
+    "background_temperature_K"},
     "propellant": {"name", "symbol", "atom_mass_kg", "ion_mass_kg",
     "ion_charge_state" (1: singly charged ions), "ionization_energy_eV"},
     "profile": {"kind": "bohm" | "frequency", "family": str, "coefficients": {...},

@@ -204,3 +204,29 @@ def test_profile_property(zs, v0, sigma):
     assert np.all(np.diff(p.z_m) > 0)
     assert sorted(p.rows) == list(range(1, z.size + 1))
     np.testing.assert_array_equal(np.sort(z), p.z_m)
+
+
+@pytest.mark.parametrize("fmt", ["csv", "parquet"])
+def test_background_pressure_round_trip_and_default(tmp_path, fmt):
+    ds = DataSet([OperatingPointData(
+        OperatingPoint("p1", 300.0, 4.5e-6, background_pressure_Pa=2.5e-3, background_temperature_K=290.0),
+        IonVelocityProfile(Z, V, S))])
+    ds.save(tmp_path, format=fmt)
+    back = load_dataset(tmp_path)
+    assert back["p1"].point.background_pressure_Pa == 2.5e-3
+    assert back["p1"].point.background_temperature_K == 290.0
+    # A table without the optional columns means space (0 Pa) at 300 K.
+    ops = tmp_path / f"operating_points.{fmt}"
+    frame = pd.read_csv(ops) if fmt == "csv" else pd.read_parquet(ops)
+    frame = frame.drop(columns=["background_pressure_Pa", "background_temperature_K"])
+    frame.to_csv(ops, index=False) if fmt == "csv" else frame.to_parquet(ops, index=False)
+    assert load_dataset(tmp_path)["p1"].point.background_pressure_Pa == 0.0
+
+
+def test_negative_background_pressure_names_the_row(tmp_path):
+    _dataset().save(tmp_path)
+    ops = pd.read_csv(tmp_path / "operating_points.csv")
+    ops["background_pressure_Pa"] = [1e-3, -1e-3]
+    ops.to_csv(tmp_path / "operating_points.csv", index=False)
+    with pytest.raises(InputDataError, match=r"operating_points.csv, row 2: .*background_pressure_Pa"):
+        load_dataset(tmp_path)

@@ -204,6 +204,24 @@ def test_base_case_is_valid(tmp_path):
     assert cal.problem.dim == 4
 
 
+def test_background_pressure_from_the_file(tmp_path, capsys):
+    """Facility pressure and temperature reach the operating point; a negative one is refused."""
+    from profshape.config import load_config
+    from profshape.pipeline import build_calibration
+
+    text = BASE.replace('label = "250V"\n', 'label = "250V"\nbackground_pressure_Pa = 2e-3\n'
+                        'background_temperature_K = 290.0\n')
+    cal = build_calibration(load_config(_write_case(tmp_path, text)), tmp_path / "out", progress=False)
+    point = cal.problem.dataset["250V"].point
+    assert (point.background_pressure_Pa, point.background_temperature_K) == (2e-3, 290.0)
+    assert cal.problem.dataset["300V"].point.background_pressure_Pa == 0.0
+    bad = BASE.replace('label = "250V"\n', 'label = "250V"\nbackground_pressure_Pa = -1e-3\n')
+    path = _write_case(tmp_path, bad)
+    assert main(["calibrate", str(path), "--out", str(tmp_path / "out2")]) == 2
+    err = capsys.readouterr().err
+    assert "operating_points[2]" in err and "background_pressure_Pa" in err
+
+
 @pytest.mark.parametrize("case", CASES, ids=[c[0] for c in CASES])
 def test_refused_with_a_clear_error(case, tmp_path, capsys, tally, earlier_result):
     _, edit_toml, edit_folder, fragment = case
