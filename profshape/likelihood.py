@@ -34,6 +34,7 @@ fit follows a chi-square law with :math:`n - p` degrees of freedom, and
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -220,13 +221,7 @@ def evaluate_misfit(
         if not (math.isfinite(discrepancy_sigma_m_s) and discrepancy_sigma_m_s >= 0):
             return Misfit.failure(f"discrepancy_sigma_m_s must be finite and >= 0; got "
                                   f"{discrepancy_sigma_m_s!r}", dataset.n_data)
-        settings = LikelihoodSettings(
-            discrepancy_sigma_m_s=float(discrepancy_sigma_m_s),
-            scalar_discrepancy_relative=settings.scalar_discrepancy_relative,
-            weights=settings.weights,
-            use_position_uncertainty=settings.use_position_uncertainty,
-            n_fitted=settings.n_fitted,
-        )
+        settings = dataclasses.replace(settings, discrepancy_sigma_m_s=float(discrepancy_sigma_m_s))
     chi2_total = 0.0
     loglike_total = 0.0
     per_point: dict[str, float] = {}
@@ -316,13 +311,7 @@ def residual_table(
 
     settings = settings or LikelihoodSettings()
     if discrepancy_sigma_m_s is not None:
-        settings = LikelihoodSettings(
-            discrepancy_sigma_m_s=float(discrepancy_sigma_m_s),
-            scalar_discrepancy_relative=settings.scalar_discrepancy_relative,
-            weights=settings.weights,
-            use_position_uncertainty=settings.use_position_uncertainty,
-            n_fitted=settings.n_fitted,
-        )
+        settings = dataclasses.replace(settings, discrepancy_sigma_m_s=float(discrepancy_sigma_m_s))
     rows: list[dict[str, object]] = []
     for data in dataset:
         label = data.label
