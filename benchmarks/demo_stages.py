@@ -64,12 +64,13 @@ def main() -> None:
     import pandas as pd
 
     from profshape import posterior as post_pkg
-    from profshape import report
     from profshape.cli import demo_config_text
     from profshape.config import parse_config
-    from profshape.pipeline import _executor, build_calibration, open_output_folder
     from profshape.posterior import _evaluate, bands, sample
     from profshape.search import run_search
+    from profshape.workflow import after_search, build_calibration, open_output_folder, report
+    from profshape.workflow.layout import TRIALS_FILE
+    from profshape.workflow.run import finish, make_executor
 
     clock = _Clock()
     for mod in (sample, bands):
@@ -78,8 +79,8 @@ def main() -> None:
     post_pkg.posterior_bands = clock.wrap("posterior: bands", post_pkg.posterior_bands)
     post_pkg.predict_scalars = clock.wrap("posterior: predictions", post_pkg.predict_scalars)
     report.write_outputs = clock.wrap("figures, summary, report", report.write_outputs)
-    report._save_stage = clock.wrap("posterior: emulated bands", report._save_stage)
-    report._write_checks = clock.wrap("checks", report._write_checks)
+    after_search._save_stage = clock.wrap("posterior: emulated bands", after_search._save_stage)
+    after_search._write_checks = clock.wrap("checks", after_search._write_checks)
     del _evaluate
 
     text, folder = demo_config_text(args.budget, None, args.workers)
@@ -102,13 +103,13 @@ def main() -> None:
     out = open_output_folder(cfg, out)
     cal = build_calibration(cfg, out, progress=False)
     with ExitStack() as stack:
-        executor = _executor(cfg, stack)
+        executor = make_executor(cfg, stack)
         w0, c0 = time.perf_counter(), time.process_time()
-        result = run_search(cal.problem, cal.search_settings, out / "trials.parquet",
+        result = run_search(cal.problem, cal.search_settings, out / TRIALS_FILE,
                             executor=executor)
         search_wall, search_cpu = time.perf_counter() - w0, time.process_time() - c0
         w0 = time.perf_counter()
-        summary = report.finish(cal, result, out, executor=executor)
+        summary = finish(cal, result, out, executor=executor)
         finish_wall = time.perf_counter() - w0
     total = time.perf_counter() - t_all
     trials = result.trials

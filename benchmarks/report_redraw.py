@@ -44,7 +44,7 @@ def main() -> None:
     import matplotlib.figure
 
     import profshape
-    from profshape.report import rebuild_report
+    from profshape.workflow import rebuild_report
 
     print(f"profshape from {Path(profshape.__file__).parent}; import {time.perf_counter() - t0:.2f} s")
     per_figure: dict[str, list[float]] = {}

@@ -80,7 +80,7 @@ def demo_config_text(budget: int | None = None, seed: int | None = None,
 
 def _cmd_demo(args: argparse.Namespace) -> int:
     from .config import parse_config
-    from .pipeline import new_folder_name, run_calibration
+    from .workflow import new_folder_name, run_calibration
 
     for name in ("budget", "workers"):
         v = getattr(args, name)
@@ -95,7 +95,7 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 
 
 def _cmd_calibrate(args: argparse.Namespace) -> int:
-    from .pipeline import calibrate
+    from .workflow import calibrate
 
     out = args.out
     summary = calibrate(args.file, out, progress=not args.quiet)
@@ -104,7 +104,7 @@ def _cmd_calibrate(args: argparse.Namespace) -> int:
 
 
 def _cmd_resume(args: argparse.Namespace) -> int:
-    from .pipeline import resume
+    from .workflow import resume
 
     summary = resume(args.folder, progress=not args.quiet, budget=args.budget)
     _print_summary(summary, Path(args.folder))
@@ -112,7 +112,7 @@ def _cmd_resume(args: argparse.Namespace) -> int:
 
 
 def _cmd_report(args: argparse.Namespace) -> int:
-    from .report import rebuild_report
+    from .workflow import rebuild_report
 
     summary = rebuild_report(args.folder)
     _print_summary(summary, Path(args.folder))
@@ -129,7 +129,7 @@ def _cmd_init(args: argparse.Namespace) -> int:
 
 
 def _cmd_export(args: argparse.Namespace) -> int:
-    from .export import export_closure
+    from .workflow import export_closure
 
     formats = args.formats.split(",") if args.formats else ("csv", "json", "nc")
     for fmt, path in export_closure(args.folder, args.out, formats).items():
@@ -138,7 +138,7 @@ def _cmd_export(args: argparse.Namespace) -> int:
 
 
 def _cmd_compare(args: argparse.Namespace) -> int:
-    from .compare_runs import compare_runs
+    from .workflow import compare_runs
 
     result = compare_runs(args.folders, args.out, criterion=args.criterion)
     print(result["text"], end="")

@@ -140,8 +140,8 @@ def run_reference(cal: Any, out: str | Path, executor: Any = None) -> dict[str, 
         ``value``) and ``predictions`` per point (z, ion velocity, scalars).
         A failed forward run is recorded with its status and reason.
     """
+    from .atomic_write import atomic_write_bytes
     from .likelihood import evaluate_misfit
-    from .trials import atomic_write_bytes
 
     cfg = cal.config
     ref = cfg.section("reference")

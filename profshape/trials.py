@@ -59,12 +59,10 @@ predictions : str
 
 from __future__ import annotations
 
-import contextlib
 import json
 import math
 import os
 import re
-import tempfile
 import time
 from collections.abc import Mapping, Sequence
 from pathlib import Path
@@ -74,6 +72,7 @@ import numpy as np
 import pandas as pd
 
 from ._version import __version__
+from .atomic_write import atomic_write_bytes
 from .exceptions import InputDataError
 
 __all__ = [
@@ -132,55 +131,6 @@ def reason_signature(reason: str) -> str:
     for pattern, repl in _SIGNATURE_SUBS:
         text = pattern.sub(repl, text)
     return text.strip()
-
-
-def _fsync_dir(folder: Path) -> None:
-    with contextlib.suppress(OSError):  # not every platform can open a folder
-        fd = os.open(folder, os.O_RDONLY)
-        try:
-            os.fsync(fd)
-        finally:
-            os.close(fd)
-
-
-def _current_umask() -> int:
-    """The process umask, read without changing it where Linux allows (thread-safe)."""
-    with contextlib.suppress(OSError, ValueError):
-        for line in Path("/proc/self/status").read_text().splitlines():
-            if line.startswith("Umask:"):
-                return int(line.split()[1], 8)
-    mask = os.umask(0o022)
-    os.umask(mask)
-    return mask
-
-
-def atomic_write_bytes(path: str | os.PathLike[str], writer: Any) -> None:
-    """Write a file atomically: temp file in the same folder, fsync, os.replace.
-
-    Parameters
-    ----------
-    path : path-like
-        Destination.
-    writer : callable
-        ``writer(tmp_path)`` writes the full content to ``tmp_path``.
-    """
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    os.close(fd)
-    try:
-        # mkstemp makes the file 0600; give it the usual mode (0666 less the umask), so
-        # logs on a shared cluster are readable by the group as other outputs are
-        os.chmod(tmp, 0o666 & ~_current_umask())
-        writer(tmp)
-        with open(tmp, "rb+") as fh:
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
-        raise
-    _fsync_dir(path.parent)
 
 
 def _json_default(obj: Any) -> Any:

@@ -23,9 +23,9 @@ from typing import Any
 
 import numpy as np
 
+from ..atomic_write import atomic_write_bytes
 from ..operating_point import OperatingPoint
 from ..profile import AnomalousProfile
-from ..trials import atomic_write_bytes
 from .base import ForwardModel, Prediction
 
 __all__ = ["CachedModel", "cache_key_for", "family_definition"]

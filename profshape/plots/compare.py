@@ -25,7 +25,7 @@ def plot_comparison(
     Parameters
     ----------
     table : DataFrame
-        From :func:`profshape.compare_runs.comparison_table` (``label``,
+        From :func:`profshape.workflow.compare_runs.comparison_table` (``label``,
         ``family``, ``delta_bic``, ``verdict``, ``best_reduced_chi2``).
     bands : mapping of label to profile-band DataFrame, optional
     paths : path or paths, optional

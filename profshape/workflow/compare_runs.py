@@ -21,7 +21,7 @@ from typing import Any
 
 import pandas as pd
 
-from .exceptions import InputDataError
+from ..exceptions import InputDataError
 
 __all__ = ["compare_runs", "comparison_table", "format_comparison"]
 
@@ -61,11 +61,12 @@ def comparison_table(runs: Sequence[str | Path], criterion: str = "bic") -> tupl
         Fewer than two runs, a folder that is not a calibration, or runs on
         different data.
     """
-    from .pipeline import build_calibration, config_from_folder
-    from .posterior import PosteriorBands, PosteriorResult
-    from .posterior.compare import compare_families
-    from .report import BANDS_DIR, POSTERIOR_DIR
-    from .trials import read_trials
+    from ..posterior import PosteriorBands, PosteriorResult
+    from ..posterior.compare import compare_families
+    from ..trials import read_trials
+    from .build import build_calibration
+    from .folder import config_from_folder
+    from .layout import BANDS_DIR, POSTERIOR_DIR
 
     paths = [Path(r) for r in runs]
     if len(paths) < 2:
@@ -137,8 +138,8 @@ def compare_runs(runs: Sequence[str | Path], out: str | Path | None = None, *,
     dict
         ``table`` (DataFrame), ``text`` (Markdown), ``folder`` and ``files``.
     """
-    from .plots.compare import plot_comparison
-    from .trials import atomic_write_bytes
+    from ..atomic_write import atomic_write_bytes
+    from ..plots.compare import plot_comparison
 
     table, extra = comparison_table(runs, criterion)
     if out is None:

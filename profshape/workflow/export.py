@@ -51,9 +51,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ._version import __version__
-from .exceptions import InputDataError
-from .profile import electron_gyrofrequency
+from .._version import __version__
+from ..exceptions import InputDataError
+from ..profile import electron_gyrofrequency
 
 __all__ = [
     "EXPORT_FORMATS",
@@ -78,7 +78,8 @@ _POINT_UNITS = {"discharge_voltage_V": "V", "anode_mass_flow_kg_s": "kg s-1",
 
 
 def _calibration(run: Path) -> Any:
-    from .pipeline import build_calibration, config_from_folder
+    from .build import build_calibration
+    from .folder import config_from_folder
 
     return build_calibration(config_from_folder(run), run, progress=False)
 
@@ -127,8 +128,8 @@ def closure_frame(run: str | Path, cal: Any = None) -> tuple[pd.DataFrame, dict[
     InputDataError
         If ``run`` is not a calibration folder or has no successful trial.
     """
-    from .report import BANDS_DIR
-    from .trials import read_trials
+    from ..trials import read_trials
+    from .layout import BANDS_DIR
 
     run = Path(run)
     if not (run / "trials.parquet").exists():
@@ -284,7 +285,7 @@ def export_closure(
     InputDataError
         Unknown format, not a calibration folder, or no successful trial.
     """
-    from .trials import atomic_write_bytes
+    from ..atomic_write import atomic_write_bytes
 
     formats = [str(f).lower().lstrip(".") for f in formats]
     unknown = [f for f in formats if f not in EXPORT_FORMATS]

@@ -1,6 +1,6 @@
 """Extend a calibration: more trials for a run that has finished (or stopped early).
 
-``profshape resume RUN --budget N`` (and :func:`profshape.pipeline.resume` with
+``profshape resume RUN --budget N`` (and :func:`profshape.workflow.resume` with
 ``budget=N``) raises the run's trial budget to ``N`` in all. The finished
 trials are kept, the search goes on with the same seed stream from where it
 stopped, and the posterior, bands, predictions, figures and report are redone
@@ -13,16 +13,16 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from .config import CalibrationConfig
-from .exceptions import InputDataError
+from ..config import CalibrationConfig
+from ..exceptions import InputDataError
 
 __all__ = ["extend_budget", "finished_trials"]
 
 
 def finished_trials(out_dir: str | Path) -> int:
     """Number of trials in a calibration folder's trial log (0 without one)."""
-    from .pipeline import TRIALS_FILE
-    from .trials import read_trials
+    from ..trials import read_trials
+    from .layout import TRIALS_FILE
 
     log = Path(out_dir) / TRIALS_FILE
     return len(read_trials(log)) if log.exists() else 0

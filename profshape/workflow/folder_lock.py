@@ -25,7 +25,7 @@ import time
 from collections.abc import Iterator
 from pathlib import Path
 
-from .exceptions import FolderLockedError, InputDataError
+from ..exceptions import FolderLockedError, InputDataError
 
 __all__ = ["LOCK_FILE", "FolderLockedError", "lock_output_folder"]
 

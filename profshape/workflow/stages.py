@@ -53,7 +53,7 @@ class CountingExecutor(Executor):
     """
 
     def __init__(self, inner: Executor | None, on_done: Any):
-        from .executors import InlineExecutor
+        from ..executors import InlineExecutor
 
         self.inner = inner if inner is not None else InlineExecutor()
         self.on_done = on_done

@@ -168,7 +168,7 @@ def test_readme_documents_every_key():
 def test_export_round_trips_exactly(case):
     import xarray as xr
 
-    from profshape.export import closure_frame, read_closure_csv
+    from profshape.workflow.export import closure_frame, read_closure_csv
 
     out = case["folder"] / "exported"
     proc = _run("export", str(case["run"]), "--out", str(out), cwd=case["folder"])
@@ -277,7 +277,7 @@ def test_compare_two_families(case):
 def test_export_without_posterior_gives_the_best_profile(case, tmp_path):
     import shutil
 
-    from profshape.export import export_closure, read_closure_csv
+    from profshape.workflow.export import export_closure, read_closure_csv
 
     run = tmp_path / "run"
     shutil.copytree(case["run"], run)
@@ -288,3 +288,26 @@ def test_export_without_posterior_gives_the_best_profile(case, tmp_path):
     assert value_cols == ["bohm_coefficient__best", "collision_frequency_hz__best"]
     with pytest.raises(Exception, match="formats must be among"):
         export_closure(run, formats=["xlsx"])
+
+
+def test_report_leaves_the_matplotlib_backend_alone(case, tmp_path):
+    # writing a report used to call matplotlib.use("Agg"), switching e.g. a Jupyter session's
+    # backend; it now draws on Figure objects. A fresh process, so no other test's backend counts.
+    import shutil
+
+    run = tmp_path / "run"
+    shutil.copytree(case["run"], run)
+    shutil.rmtree(run / "figures")
+    code = textwrap.dedent(f"""
+        import matplotlib
+        matplotlib.use("svg")
+        from profshape.workflow import rebuild_report
+        summary = rebuild_report({str(run)!r})
+        print(matplotlib.get_backend(), len(summary["figures"]))
+    """)
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          timeout=600, cwd=tmp_path)
+    assert proc.returncode == 0, proc.stderr[-3000:]
+    backend, n_figures = proc.stdout.split()
+    assert backend == "svg"
+    assert int(n_figures) > 0 and (run / "figures" / "fit.png").exists()

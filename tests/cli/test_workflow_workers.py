@@ -178,7 +178,7 @@ def test_stage_lines_count_runs_and_give_an_eta():
     import io
 
     from profshape.executors import InlineExecutor
-    from profshape.stages import StageProgress
+    from profshape.workflow.stages import StageProgress
 
     trials = pd.DataFrame({"status": ["ok", "ok", "ok", "failed"],
                            "wall_time_s": [1.0, 2.0, 3.0, 50.0]})

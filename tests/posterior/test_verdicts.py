@@ -184,7 +184,7 @@ def test_report_shows_the_same_ess_and_tau_as_the_summary_and_the_checks(linear_
                                                                         linear_posterior):
     # One effective sample size and one autocorrelation time: the report prints the
     # numbers the summary holds; failing checks open the report, loudly.
-    from profshape.report import _report_markdown
+    from profshape.workflow.report import _report_markdown
 
     problem, trials = linear_case
     d = linear_posterior.diagnostics

@@ -198,7 +198,7 @@ def _refused(capsys, argv, fragment, tally):
 def test_base_case_is_valid(tmp_path):
     """The battery's base file is accepted, so every refusal below is due to its one change."""
     from profshape.config import load_config
-    from profshape.pipeline import build_calibration
+    from profshape.workflow import build_calibration
 
     cal = build_calibration(load_config(_write_case(tmp_path, BASE)), tmp_path / "out", progress=False)
     assert cal.problem.dim == 4
@@ -207,7 +207,7 @@ def test_base_case_is_valid(tmp_path):
 def test_background_pressure_from_the_file(tmp_path, capsys):
     """Facility pressure and temperature reach the operating point; a negative one is refused."""
     from profshape.config import load_config
-    from profshape.pipeline import build_calibration
+    from profshape.workflow import build_calibration
 
     text = BASE.replace('label = "250V"\n', 'label = "250V"\nbackground_pressure_Pa = 2e-3\n'
                         'background_temperature_K = 290.0\n')
@@ -293,7 +293,7 @@ def test_real_command_line(case, tmp_path, tally):
 def test_a_refused_start_does_not_block_the_corrected_file(tmp_path, capsys, tally):
     """After a refusal, the user fixes the file and runs again with the same --out."""
     from profshape.config import load_config
-    from profshape.pipeline import open_output_folder
+    from profshape.workflow import open_output_folder
 
     bad = _write_case(tmp_path, CASES[31][1](BASE))  # inverted bounds
     out = tmp_path / "out"
@@ -432,7 +432,7 @@ def test_misspelt_table_name_gets_a_suggestion(tmp_path, capsys, tally):
 def test_implausible_values_are_warned(tmp_path):
     from profshape.config import load_config
     from profshape.exceptions import ImplausibleValueWarning
-    from profshape.pipeline import build_calibration
+    from profshape.workflow import build_calibration
 
     text = BASE.replace("discharge_voltage_V = 250.0", "discharge_voltage_V = 1e30").replace(
         'ion_velocity_file = "lif_300.csv"',
@@ -452,7 +452,7 @@ def test_implausible_values_are_warned(tmp_path):
 def test_propellant_fallback_is_warned(tmp_path):
     from profshape.config import load_config
     from profshape.exceptions import ProfshapeWarning
-    from profshape.pipeline import build_calibration
+    from profshape.workflow import build_calibration
 
     path = _write_case(tmp_path, BASE.replace('propellant = "xenon"\n', "", 1))
     with pytest.warns(ProfshapeWarning, match=r"operating_points\[1\] gives no propellant; using xenon"):
@@ -462,7 +462,7 @@ def test_propellant_fallback_is_warned(tmp_path):
 def test_profile_grid_without_a_device(tmp_path):
     """grid_z_m and grid_points set the external program's grid; grid_points is never ignored."""
     from profshape.config import load_config
-    from profshape.pipeline import build_calibration
+    from profshape.workflow import build_calibration
 
     path = _write_case(tmp_path, BASE.replace("timeout_s = 10", "timeout_s = 10\ngrid_points = 51")
                        .replace("options = { channel_length_m = 0.024 }\n", ""))

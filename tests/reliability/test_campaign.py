@@ -23,8 +23,8 @@ import psutil
 import pytest
 
 from profshape.cli import main
-from profshape.folder_lock import LOCK_FILE, FolderLockedError, lock_output_folder
 from profshape.trials import read_trials
+from profshape.workflow.folder_lock import LOCK_FILE, FolderLockedError, lock_output_folder
 from reliability.test_bad_input import _lif
 
 HERE = Path(__file__).resolve().parent
