@@ -291,7 +291,7 @@ class OutputEmulator:
                     warm: dict[str, Sequence[float]] | None, optimize: bool = True,
                     subset: Any | None = None) -> SingleTaskGP:
         # deferred import: profshape.search imports this module's users, not the reverse
-        from .search.surrogate import _map_objective, hyperparameters, set_hyperparameters
+        from .search.surrogate import hyperparameters, map_objective, set_hyperparameters
 
         x = torch.as_tensor(X, dtype=DTYPE)
         y = torch.as_tensor(scores, dtype=DTYPE)
@@ -310,8 +310,8 @@ class OutputEmulator:
         mll = ExactMarginalLogLikelihood(model.likelihood, model)
         if warm:
             default = hyperparameters(model)
-            base = _map_objective(mll)
-            if set_hyperparameters(model, warm) and _map_objective(mll) < base:
+            base = map_objective(mll)
+            if set_hyperparameters(model, warm) and map_objective(mll) < base:
                 set_hyperparameters(model, default)
         with torch.random.fork_rng(), warnings.catch_warnings():
             torch.manual_seed(self.seed)

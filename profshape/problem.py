@@ -17,9 +17,9 @@ from .exceptions import InputDataError
 from .forward.base import ForwardModel, Prediction
 from .likelihood import LikelihoodSettings, Misfit, evaluate_misfit
 from .operating_point import OperatingPoint
+from .parameter_space import Parameter, bounds_of, check_in_bounds, from_unit, to_unit
 from .profile import AnomalousProfile
-from .shapes import Parameter, ShapeFamily
-from .shapes._base import check_in_bounds
+from .shapes import ShapeFamily
 
 __all__ = ["CalibrationProblem", "TrialOutcome"]
 
@@ -167,7 +167,7 @@ class CalibrationProblem:
     @property
     def bounds(self) -> np.ndarray:
         """Bounds of shape (dim, 2)."""
-        return np.array([[p.lower, p.upper] for p in self.parameters], dtype=float)
+        return bounds_of(self.parameters)
 
     @property
     def dim(self) -> int:
@@ -176,13 +176,11 @@ class CalibrationProblem:
 
     def to_unit(self, coefficients: Any) -> np.ndarray:
         """Coefficients (physical units) → unit cube."""
-        b = self.bounds
-        return (np.asarray(coefficients, dtype=float) - b[:, 0]) / (b[:, 1] - b[:, 0])
+        return np.asarray(to_unit(np.asarray(coefficients, dtype=float), self.bounds))
 
     def from_unit(self, unit: Any) -> np.ndarray:
         """Unit cube → coefficients (physical units)."""
-        b = self.bounds
-        return b[:, 0] + np.asarray(unit, dtype=float) * (b[:, 1] - b[:, 0])
+        return np.asarray(from_unit(np.asarray(unit, dtype=float), self.bounds))
 
     def validate(self, coefficients: Any) -> np.ndarray:
         """Check a full coefficient vector (or a name → value mapping); see ShapeFamily.validate."""

@@ -7,6 +7,7 @@ from collections.abc import Sequence
 import numpy as np
 
 from ..exceptions import InputDataError
+from ..parameter_space import from_unit, to_unit
 
 __all__ = ["SearchSpace"]
 
@@ -49,10 +50,8 @@ class SearchSpace:
 
     def to_unit(self, x: np.ndarray) -> np.ndarray:
         """Physical values (..., d) to the unit cube."""
-        x = np.asarray(x, dtype=float)
-        return (x - self.bounds[:, 0]) / (self.bounds[:, 1] - self.bounds[:, 0])
+        return np.asarray(to_unit(np.asarray(x, dtype=float), self.bounds))
 
     def from_unit(self, u: np.ndarray) -> np.ndarray:
         """Unit-cube values (..., d) to physical values."""
-        u = np.asarray(u, dtype=float)
-        return self.bounds[:, 0] + u * (self.bounds[:, 1] - self.bounds[:, 0])
+        return np.asarray(from_unit(np.asarray(u, dtype=float), self.bounds))

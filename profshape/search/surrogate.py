@@ -55,6 +55,7 @@ __all__ = [
     "fit_objective_model",
     "gp_with_fixed_hyperparameters",
     "hyperparameters",
+    "map_objective",
     "set_hyperparameters",
 ]
 
@@ -108,7 +109,7 @@ def set_hyperparameters(model: SingleTaskGP, values: dict[str, Sequence[float]])
     return True
 
 
-def _map_objective(mll: ExactMarginalLogLikelihood) -> float:
+def map_objective(mll: ExactMarginalLogLikelihood) -> float:
     """Marginal log likelihood plus log priors at the current hyperparameters."""
     model = mll.model
     model.train()
@@ -127,10 +128,10 @@ def _warm_start(mll: ExactMarginalLogLikelihood, warm: dict[str, Sequence[float]
         return
     model = mll.model
     default = hyperparameters(model)
-    default_score = _map_objective(mll)
+    default_score = map_objective(mll)
     if not set_hyperparameters(model, warm):
         return
-    if _map_objective(mll) < default_score:
+    if map_objective(mll) < default_score:
         set_hyperparameters(model, default)
 
 

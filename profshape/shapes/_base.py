@@ -4,94 +4,18 @@ from __future__ import annotations
 
 import copy
 import functools
-import math
 from abc import ABC, abstractmethod
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
 from ..exceptions import InputDataError
+from ..parameter_space import Parameter, bounds_of, check_in_bounds, from_unit, to_unit
 from ..profile import AnomalousProfile, ProfileKind
 from ._xp import namespace_of, to_backend
 
 __all__ = ["Parameter", "ShapeFamily", "check_in_bounds"]
-
-#: Relative slack allowed on bounds before a coefficient counts as outside them.
-_BOUND_SLACK = 1e-9
-
-
-@dataclass(frozen=True)
-class Parameter:
-    """One coefficient of a shape family.
-
-    Parameters
-    ----------
-    name : str
-        Identifier, e.g. ``"log10_inner_level"``; level parameters are log10 values.
-    lower, upper : float
-        Bounds in the parameter's own unit; ``lower < upper``.
-    unit : str
-        Unit of the parameter, e.g. ``"m"``, ``"log10(-)"`` or ``"log10(1/s)"``.
-    description : str, default=""
-        One line for reports.
-    """
-
-    name: str
-    lower: float
-    upper: float
-    unit: str
-    description: str = ""
-
-    def __post_init__(self) -> None:
-        lo, hi = float(self.lower), float(self.upper)
-        if not (math.isfinite(lo) and math.isfinite(hi)):
-            raise InputDataError(
-                f"bounds of {self.name!r} must be finite; got [{self.lower!r}, {self.upper!r}]."
-            )
-        if not lo < hi:
-            what = "zero-width" if lo == hi else "inverted"
-            raise InputDataError(
-                f"bounds of {self.name!r} are {what}: [{lo!r}, {hi!r}]; give lower < upper."
-            )
-        object.__setattr__(self, "lower", lo)
-        object.__setattr__(self, "upper", hi)
-
-
-def check_in_bounds(c: np.ndarray, parameters: Sequence[Parameter], owner: str) -> np.ndarray:
-    """Check coefficients of shape (d,) or (n, d) are finite and within bounds.
-
-    Values within a tiny relative slack of a bound are clipped onto it.
-
-    Raises
-    ------
-    InputDataError
-        Naming ``owner``, the parameter, the value (and row) and the bounds.
-    """
-    names = [p.name for p in parameters]
-    b = np.array([[p.lower, p.upper] for p in parameters], dtype=float)
-    c2 = np.atleast_2d(c)
-    bad = ~np.isfinite(c2)
-    if bad.any():
-        row, col = np.argwhere(bad)[0]
-        raise InputDataError(
-            f"{owner}: coefficient {names[col]!r} is {float(c2[row, col])!r}"
-            + (f" (row {row})" if c.ndim == 2 else "")
-            + "; coefficients must be finite numbers."
-        )
-    slack = _BOUND_SLACK * (b[:, 1] - b[:, 0])
-    outside = (c2 < b[:, 0] - slack) | (c2 > b[:, 1] + slack)
-    if outside.any():
-        row, col = np.argwhere(outside)[0]
-        raise InputDataError(
-            f"{owner}: coefficient {names[col]!r} = {float(c2[row, col])!r}"
-            + (f" (row {row})" if c.ndim == 2 else "")
-            + f" is outside its bounds [{float(b[col, 0])!r}, {float(b[col, 1])!r}] "
-            f"[{parameters[col].unit}]; give a value inside them or widen the bounds."
-        )
-    c2 = np.clip(c2, b[:, 0], b[:, 1])
-    return c2 if c.ndim == 2 else c2[0]
 
 
 class ShapeFamily(ABC):
@@ -142,7 +66,7 @@ class ShapeFamily(ABC):
     @property
     def bounds(self) -> np.ndarray:
         """Bounds of shape (n_coefficients, 2): columns lower, upper."""
-        return np.array([[p.lower, p.upper] for p in self._parameters], dtype=float)
+        return bounds_of(self._parameters)
 
     @property
     def n_coefficients(self) -> int:
@@ -242,19 +166,12 @@ class ShapeFamily(ABC):
 
     # ---------------------------------------------------------------- unit cube
     def to_unit(self, coefficients: Any) -> Any:
-        """Map coefficients (physical units) to the unit cube [0, 1]^d."""
-        xp = namespace_of(coefficients)
-        b = to_backend(self.bounds, coefficients)
-        return (coefficients - b[:, 0]) / (b[:, 1] - b[:, 0]) if xp.is_torch else (
-            (np.asarray(coefficients, dtype=float) - b[:, 0]) / (b[:, 1] - b[:, 0])
-        )
+        """Map coefficients (physical units) to the unit cube [0, 1]^d (numpy or torch)."""
+        return to_unit(coefficients, self.bounds)
 
     def from_unit(self, unit: Any) -> Any:
-        """Map unit-cube points to coefficients (physical units)."""
-        xp = namespace_of(unit)
-        b = to_backend(self.bounds, unit)
-        u = unit if xp.is_torch else np.asarray(unit, dtype=float)
-        return b[:, 0] + u * (b[:, 1] - b[:, 0])
+        """Map unit-cube points to coefficients (physical units; numpy or torch)."""
+        return from_unit(unit, self.bounds)
 
     def sample(self, n: int, seed: int | None = None) -> np.ndarray:
         """``n`` coefficient vectors drawn uniformly within the bounds, shape (n, d)."""
