@@ -14,6 +14,7 @@ import numpy as np
 from .closure import BoundClosure, ConditionClosure
 from .data import DataSet
 from .exceptions import InputDataError
+from .fan_out import run_profiles
 from .forward.base import ForwardModel, Prediction
 from .likelihood import LikelihoodSettings, Misfit, evaluate_misfit
 from .operating_point import OperatingPoint
@@ -231,7 +232,18 @@ class CalibrationProblem:
         point outside the data set with free per-point scales gets the mean
         of the per-point log10 scales.
         """
+        return self._profile_at(self.validate(coefficients), point)
+
+    def profiles(self, coefficients: Any) -> dict[str, AnomalousProfile]:
+        """The profile run at each operating point of the data set, by label.
+
+        The coefficients are checked once (see :meth:`validate`).
+        """
         c = self.validate(coefficients)
+        return {p.label: self._profile_at(c, p) for p in self.dataset.operating_points}
+
+    def _profile_at(self, c: np.ndarray, point: OperatingPoint) -> AnomalousProfile:
+        """:meth:`profile_at` of checked coefficients."""
         d = self.family.n_coefficients
         shape = c[:d]
         notes: dict[str, float] = {}
@@ -239,7 +251,7 @@ class CalibrationProblem:
             slopes = c[d:d + self.closure.n_slopes]
             shape, clipped = self.closure.coefficients_at(shape, slopes, point)
             notes = {f"clipped__{name}": 1.0 for name in clipped}
-        base = self.family.profile(shape)
+        base = self.family.profile(shape, validate=self.closure is not None)
         if notes:
             base = base.scaled(1.0, **notes)
         if not self.free_scale_per_point:
@@ -262,21 +274,35 @@ class CalibrationProblem:
     def run_points(
         self, coefficients: Any, executor: Executor | None = None
     ) -> dict[str, Prediction]:
-        """Run the forward model at every operating point (in parallel on ``executor``)."""
-        c = self.validate(coefficients)
-        profiles = {lab: self.profile_for(c, lab) for lab in self.dataset.labels}
-        points = {p.label: p for p in self.dataset.operating_points}
+        """Run the forward model at every operating point (in parallel on ``executor``).
+
+        A worker that dies or an executor error gives a ``"failed"`` prediction
+        (see :mod:`profshape.fan_out`).
+        """
+        return run_profiles(self.forward_model, [self.profiles(coefficients)], self._points,
+                            executor)[0]
+
+    def evaluate_many(self, coefficients: Any, executor: Executor | None = None
+                      ) -> list[TrialOutcome]:
+        """:meth:`evaluate` each row of ``coefficients`` (n, d); every run submitted at once.
+
+        Raises
+        ------
+        InputDataError
+            For invalid coefficients (before any forward run).
+        """
+        rows = [self.validate(r) for r in np.atleast_2d(np.asarray(coefficients, dtype=float))]
         if executor is None:
-            return {lab: self.forward_model(profiles[lab], points[lab]) for lab in profiles}
-        futures = {lab: executor.submit(self.forward_model, profiles[lab], points[lab])
-                   for lab in profiles}
-        out: dict[str, Prediction] = {}
-        for lab, fut in futures.items():
-            try:
-                out[lab] = fut.result()
-            except Exception as exc:  # worker died, pickling failed, ...
-                out[lab] = Prediction.failure("failed", f"executor: {type(exc).__name__}: {exc}")
-        return out
+            return [self._evaluate_checked(c, None) for c in rows]
+        runs = run_profiles(self.forward_model, [self.profiles(c) for c in rows], self._points,
+                            executor)
+        # the points of a trial run side by side: its wall time is the slowest point's
+        return [self.outcome(c, preds, max((p.wall_time_s for p in preds.values()), default=0.0))
+                for c, preds in zip(rows, runs, strict=True)]
+
+    @property
+    def _points(self) -> dict[str, OperatingPoint]:
+        return {p.label: p for p in self.dataset.operating_points}
 
     def outcome(self, coefficients: Any, predictions: Mapping[str, Prediction],
                 wall_time_s: float = 0.0) -> TrialOutcome:
@@ -304,7 +330,10 @@ class CalibrationProblem:
         a status and reason); raises :class:`InputDataError` for invalid
         coefficients.
         """
+        return self._evaluate_checked(self.validate(coefficients), executor)
+
+    def _evaluate_checked(self, c: np.ndarray, executor: Executor | None) -> TrialOutcome:
         start = time.perf_counter()
-        c = self.validate(coefficients)
-        preds = self.run_points(c, executor)
+        profiles = {p.label: self._profile_at(c, p) for p in self.dataset.operating_points}
+        preds = run_profiles(self.forward_model, [profiles], self._points, executor)[0]
         return self.outcome(c, preds, time.perf_counter() - start)

@@ -86,6 +86,7 @@ __all__ = [
     "read_trials",
     "reason_signature",
     "sidecar_path",
+    "trial_row",
 ]
 
 #: Journal rows after which the parquet table is rewritten.
@@ -404,3 +405,71 @@ def nan_if_inf(x: float) -> float:
     """NaN for a non-finite misfit value (the log records failures as NaN)."""
     x = float(x)
     return x if math.isfinite(x) else math.nan
+
+
+def trial_row(problem: Any, coefficients: Any, unit: Any, *, status: str, reason: str,
+              misfit: Any, predictions: Mapping[str, Any], source: str, seed: int | None,
+              wall_time_s: float) -> dict[str, Any]:
+    """One row of the trial log, the same for the search's trials and the posterior's runs.
+
+    Parameters
+    ----------
+    problem : CalibrationProblem
+        Its ``names`` and ``dataset.labels`` fix the columns.
+    coefficients, unit : array_like of shape (d,)
+        The coefficients (physical units) and their unit-cube coordinates.
+    status, reason : str
+        The run's status (``"ok"``, ``"failed"``, ...) and why it failed.
+    misfit : object or None
+        ``reduced_chi2``, ``chi2``, ``n_data``, ``log_likelihood``, ``per_point``
+        and ``per_observable`` (a :class:`profshape.likelihood.Misfit` or alike).
+    predictions : mapping label -> Prediction
+        Every point's prediction, failed ones too: their status, reason and
+        null values are kept in the ``predictions`` JSON.
+    source : str
+    seed : int or None
+        Logged as -1 when None.
+    wall_time_s : float
+
+    Returns
+    -------
+    dict
+        Columns ``source``, ``status``, the misfits (NaN unless ok), one
+        ``misfit__<label>`` per point and ``misfit__<label>__<observable>``,
+        the coefficients and their ``u__`` coordinates, ``wall_time_s``,
+        ``error``, ``seed``, ``predictions``. The caller adds ``trial``,
+        ``batch`` and times where it has them.
+    """
+    ok = status == "ok"
+
+    def value(name: str) -> float:
+        return nan_if_inf(getattr(misfit, name)) if ok and misfit is not None else math.nan
+
+    row: dict[str, Any] = {
+        "source": source,
+        "status": status,
+        "reduced_chi2": value("reduced_chi2"),
+        "chi2": value("chi2"),
+        "n_data": int(getattr(misfit, "n_data", 0) or 0),
+        "log_likelihood": value("log_likelihood"),
+    }
+    per_point = getattr(misfit, "per_point", None) or {}
+    for lab in problem.dataset.labels:
+        row[f"misfit__{lab}"] = nan_if_inf(per_point.get(lab, math.nan)) if ok else math.nan
+    for key, v in (getattr(misfit, "per_observable", None) or {}).items():
+        lab, _, obs = str(key).rpartition("/")  # labels may hold "/", observable names do not
+        row[f"misfit__{lab}__{obs}"] = nan_if_inf(v) if ok else math.nan
+    c = np.asarray(coefficients, dtype=float)
+    u = np.asarray(unit, dtype=float)
+    for j, name in enumerate(problem.names):
+        row[name] = float(c[j])
+    for j, name in enumerate(problem.names):
+        row[f"u__{name}"] = float(u[j])
+    preds = {lab: p.to_json_dict() for lab, p in predictions.items() if p is not None}
+    row.update(
+        wall_time_s=float(wall_time_s),
+        error="" if ok else (reason or status),
+        seed=-1 if seed is None else int(seed),
+        predictions=json.dumps(preds, allow_nan=True),
+    )
+    return row

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import math
 import time
 from collections.abc import Sequence
@@ -13,6 +12,8 @@ import numpy as np
 import pandas as pd
 
 from ..exceptions import InputDataError
+from ..trials import trial_row
+from .protocol import PosteriorProblem
 
 __all__: list[str] = []
 
@@ -62,7 +63,7 @@ def _from_outcome(outcome: Any) -> DrawRun:
     return run
 
 
-def _safe_evaluate(problem: Any, coefficients: np.ndarray) -> DrawRun:
+def _safe_evaluate(problem: PosteriorProblem, coefficients: np.ndarray) -> DrawRun:
     start = time.perf_counter()
     try:
         return _from_outcome(problem.evaluate(np.asarray(coefficients, dtype=float)))
@@ -74,75 +75,33 @@ def _safe_evaluate(problem: Any, coefficients: np.ndarray) -> DrawRun:
 
 
 def evaluate_many(
-    problem: Any, coefficients: np.ndarray, executor: Any = None
+    problem: PosteriorProblem, coefficients: np.ndarray, executor: Any = None
 ) -> list[DrawRun]:
-    """Evaluate each row of ``coefficients`` (n, d) with ``problem.evaluate``.
+    """Evaluate each row of ``coefficients`` (n, d) through the real forward model.
 
     With an ``executor`` (anything with ``submit`` returning futures with
-    ``result()``: concurrent.futures or a dask client), the rows run in
-    parallel, one task per row.
+    ``result()``: concurrent.futures or a dask client), every point of every
+    row is submitted at once (:mod:`profshape.fan_out`), as the search does.
     """
     rows = np.atleast_2d(np.asarray(coefficients, dtype=float))
     if executor is None:
         return [_safe_evaluate(problem, r) for r in rows]
-    futures = [executor.submit(_safe_evaluate, problem, r) for r in rows]
-    out = []
-    for fut in futures:
-        try:
-            out.append(fut.result())
-        except InputDataError:
-            raise
-        except Exception as exc:
-            out.append(DrawRun(status="failed", reason=f"{type(exc).__name__}: {exc}"))
-    return out
-
-
-def _prediction_json(predictions: dict[str, Any]) -> str:
-    payload = {}
-    for label, pred in predictions.items():
-        if pred is None or getattr(pred, "status", "") != "ok":
-            continue
-        z = getattr(pred, "z_m", None)
-        v = getattr(pred, "ion_velocity_m_s", None)
-        payload[label] = {
-            "z_m": [] if z is None else np.asarray(z, dtype=float).tolist(),
-            "ion_velocity_m_s": [] if v is None else np.asarray(v, dtype=float).tolist(),
-            "scalars": {k: float(x) for k, x in (getattr(pred, "scalars", {}) or {}).items()},
-        }
-    return json.dumps(payload)
+    return [_from_outcome(o) for o in problem.evaluate_many(rows, executor)]
 
 
 def runs_to_frame(
-    problem: Any,
+    problem: PosteriorProblem,
     coefficients: np.ndarray,
     runs: Sequence[DrawRun],
     source: str,
     seed: int | None = None,
 ) -> pd.DataFrame:
-    """Forward runs as rows in the trial-log column layout (``trial`` left to the log)."""
+    """Forward runs as rows of the trial log (:func:`profshape.trials.trial_row`; ``trial``
+    left to the log); failed runs are kept, with their status, reason and predictions."""
     coefficients = np.atleast_2d(np.asarray(coefficients, dtype=float))
-    names = list(problem.names)
-    unit = np.asarray(problem.to_unit(coefficients), dtype=float)
-    records = []
-    for i, run in enumerate(runs):
-        rec: dict[str, Any] = {
-            "source": source,
-            "status": run.status,
-            "reduced_chi2": run.reduced_chi2 if run.ok else math.nan,
-            "chi2": run.chi2 if run.ok else math.nan,
-            "n_data": run.n_data,
-            "log_likelihood": run.log_likelihood if run.ok else math.nan,
-            "wall_time_s": run.wall_time_s,
-            "error": run.reason,
-            "seed": -1 if seed is None else int(seed),
-            "predictions": _prediction_json(run.predictions),
-        }
-        for label, value in run.per_point.items():
-            rec[f"misfit__{label}"] = float(value)
-        for key, value in run.per_observable.items():
-            rec["misfit__" + str(key).replace("/", "__")] = float(value)
-        for j, name in enumerate(names):
-            rec[name] = float(coefficients[i, j])
-            rec[f"u__{name}"] = float(unit[i, j])
-        records.append(rec)
+    unit = np.atleast_2d(np.asarray(problem.to_unit(coefficients), dtype=float))
+    records = [trial_row(problem, coefficients[i], unit[i], status=run.status, reason=run.reason,
+                         misfit=run, predictions=run.predictions, source=source, seed=seed,
+                         wall_time_s=run.wall_time_s)
+               for i, run in enumerate(runs)]
     return pd.DataFrame.from_records(records)

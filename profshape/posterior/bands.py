@@ -20,6 +20,7 @@ import pandas as pd
 
 from ..exceptions import InputDataError
 from ._evaluate import DrawRun, evaluate_many
+from .protocol import PosteriorProblem
 from .result import PosteriorResult
 from .settings import check_levels
 
@@ -165,7 +166,7 @@ class PosteriorBands:
                    **tables)
 
 
-def _default_z(problem: Any) -> np.ndarray:
+def _default_z(problem: PosteriorProblem) -> np.ndarray:
     lows, highs = [], []
     for point in problem.dataset.operating_points:
         grid = problem.forward_model.grid(point)
@@ -181,7 +182,7 @@ def _default_z(problem: Any) -> np.ndarray:
     return np.linspace(min(lows), max(highs), 200)
 
 
-def _device_field(problem: Any) -> Callable[[np.ndarray, Any], np.ndarray] | None:
+def _device_field(problem: PosteriorProblem) -> Callable[[np.ndarray, Any], np.ndarray] | None:
     """``B(z, point)`` [T] from a forward model that carries a device with a field map."""
     device = getattr(problem.forward_model, "device", None)
     field_map = getattr(device, "magnetic_field", None)
@@ -195,7 +196,8 @@ def _scaled_field(field_map: Any, z_m: np.ndarray, point: Any) -> np.ndarray:
 
 
 def _profile_frames(
-    problem: Any, coeffs: np.ndarray, map_c: np.ndarray, z: np.ndarray, levels: tuple[float, ...],
+    problem: PosteriorProblem, coeffs: np.ndarray, map_c: np.ndarray, z: np.ndarray,
+    levels: tuple[float, ...],
     magnetic_field_T: Callable[[np.ndarray, Any], np.ndarray] | None,
 ) -> pd.DataFrame:
     frames = []
@@ -219,7 +221,7 @@ def _profile_frames(
 
 
 def _velocity_frame(
-    problem: Any, runs: Sequence[DrawRun], map_run: DrawRun, levels: tuple[float, ...]
+    problem: PosteriorProblem, runs: Sequence[DrawRun], map_run: DrawRun, levels: tuple[float, ...]
 ) -> pd.DataFrame:
     frames = []
     for label in problem.dataset.labels:
@@ -285,7 +287,7 @@ def scalar_table(
 
 
 def posterior_bands(
-    problem: Any,
+    problem: PosteriorProblem,
     posterior: PosteriorResult,
     z_m: np.ndarray | None = None,
     levels: Sequence[float] = (0.68, 0.95),
@@ -385,7 +387,7 @@ def posterior_bands(
     )
 
 
-def _reused_runs(problem: Any, posterior: PosteriorResult) -> tuple[np.ndarray, list, Any]:
+def _reused_runs(problem: PosteriorProblem, posterior: PosteriorResult) -> tuple[np.ndarray, list, Any]:
     """The posterior's check runs (draws) and MAP run, as DrawRuns, from its forward-run log."""
     from .emulated import predictions_from_json
 

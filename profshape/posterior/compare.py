@@ -33,6 +33,7 @@ import numpy as np
 import pandas as pd
 
 from ..exceptions import InputDataError
+from .protocol import PosteriorProblem
 from .result import PosteriorResult
 
 __all__ = ["compare_families", "evidence_verdict"]
@@ -53,7 +54,7 @@ def evidence_verdict(delta: float) -> str:
     return "very strong evidence against"
 
 
-def _laplace_log_evidence(problem: Any, posterior: PosteriorResult) -> float:
+def _laplace_log_evidence(problem: PosteriorProblem, posterior: PosteriorResult) -> float:
     x = posterior.samples[list(problem.names)].to_numpy(dtype=float)
     k = x.shape[1]
     cov = np.atleast_2d(np.cov(x.T))

@@ -35,6 +35,7 @@ import pandas as pd
 from scipy import linalg
 
 from ..exceptions import InputDataError
+from .protocol import PosteriorProblem
 
 __all__ = ["EmulatorTarget", "emulator_training_set"]
 
@@ -116,7 +117,7 @@ def predictions_from_json(text: Any) -> dict[str, Any]:
     return out
 
 
-def emulator_training_set(problem: Any, trials: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+def emulator_training_set(problem: PosteriorProblem, trials: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
     """Unit-cube coordinates and output vectors of the ok trials that stored their predictions.
 
     Returns empty arrays when the trial log has no usable ``predictions``
@@ -165,7 +166,7 @@ class EmulatorTarget:
 
     kind = "emulator"
 
-    def __init__(self, problem: Any, x_unit: np.ndarray, outputs: np.ndarray,
+    def __init__(self, problem: PosteriorProblem, x_unit: np.ndarray, outputs: np.ndarray,
                  seed: int = 0) -> None:
         from ..output_layout import OutputLayout
 

@@ -13,6 +13,7 @@ from ..operating_point import OperatingPoint
 from ..profile import AnomalousProfile
 from ._evaluate import DrawRun
 from .bands import scalar_table
+from .protocol import PosteriorProblem
 from .result import PosteriorResult
 from .settings import check_levels
 
@@ -20,7 +21,7 @@ __all__ = ["calibrated_range", "extrapolation_reason", "predict_scalars"]
 
 
 
-def calibrated_range(problem: Any) -> dict[str, tuple[float, float]]:
+def calibrated_range(problem: PosteriorProblem) -> dict[str, tuple[float, float]]:
     """Min and max of voltage [V], anode flow [kg/s] and field scale [-] over the data."""
     pts = problem.dataset.operating_points
     out = {}
@@ -30,7 +31,7 @@ def calibrated_range(problem: Any) -> dict[str, tuple[float, float]]:
     return out
 
 
-def extrapolation_reason(problem: Any, point: OperatingPoint) -> str:
+def extrapolation_reason(problem: PosteriorProblem, point: OperatingPoint) -> str:
     """Why ``point`` lies outside the calibrated range (empty string when inside)."""
     reasons = []
     rel = 1e-9
@@ -49,7 +50,7 @@ def extrapolation_reason(problem: Any, point: OperatingPoint) -> str:
     return "; ".join(reasons)
 
 
-def _profile_at(problem: Any, coeffs: np.ndarray, point: OperatingPoint,
+def _profile_at(problem: PosteriorProblem, coeffs: np.ndarray, point: OperatingPoint,
                 in_data: bool) -> AnomalousProfile:
     if in_data:
         return problem.profile_for(coeffs, point.label)
@@ -57,14 +58,14 @@ def _profile_at(problem: Any, coeffs: np.ndarray, point: OperatingPoint,
     return problem.profile_at(coeffs, point)
 
 
-def _run_point(problem: Any, profile: AnomalousProfile, point: OperatingPoint) -> DrawRun:
+def _run_point(problem: PosteriorProblem, profile: AnomalousProfile, point: OperatingPoint) -> DrawRun:
     pred = problem.forward_model(profile, point)
     return DrawRun(status=pred.status, reason=pred.reason, log_likelihood=0.0,
                    predictions={point.label: pred})
 
 
 def predict_scalars(
-    problem: Any,
+    problem: PosteriorProblem,
     posterior: PosteriorResult,
     points: Sequence[OperatingPoint] | None = None,
     *,

@@ -47,6 +47,7 @@ from ..exceptions import InputDataError
 from ._evaluate import DrawRun, evaluate_many, runs_to_frame
 from .basins import find_basins, pool_by_basin
 from .check import judge_check
+from .protocol import PosteriorProblem
 from .result import PosteriorResult
 from .sampler import combine_diagnostics, run_ensemble
 from .settings import PosteriorSettings
@@ -57,7 +58,7 @@ __all__ = ["ok_trials", "sample_posterior"]
 LogPrior = Callable[[np.ndarray], np.ndarray]
 
 
-def ok_trials(problem: Any, trials: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+def ok_trials(problem: PosteriorProblem, trials: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
     """Unit-cube coordinates and log-likelihoods of the usable trials.
 
     Uses the ``u__<name>`` columns when present, else the physical columns
@@ -96,7 +97,7 @@ def ok_trials(problem: Any, trials: pd.DataFrame) -> tuple[np.ndarray, np.ndarra
     return np.clip(u[inside], 0.0, 1.0), ll[inside]
 
 
-def _prior_u(problem: Any, log_prior: LogPrior | None) -> Callable[[np.ndarray], np.ndarray]:
+def _prior_u(problem: PosteriorProblem, log_prior: LogPrior | None) -> Callable[[np.ndarray], np.ndarray]:
     if log_prior is None:
         return lambda u: np.zeros(np.atleast_2d(u).shape[0])
 
@@ -240,7 +241,7 @@ def _stated_error(target: Any, u: np.ndarray) -> np.ndarray:
     return target.predict(u)[1]
 
 
-def _check_dims(problem: Any, settings: PosteriorSettings) -> None:
+def _check_dims(problem: PosteriorProblem, settings: PosteriorSettings) -> None:
     d = int(problem.dim)
     if settings.n_walkers < 2 * d:
         raise InputDataError(
@@ -250,7 +251,7 @@ def _check_dims(problem: Any, settings: PosteriorSettings) -> None:
 
 
 def sample_posterior(
-    problem: Any,
+    problem: PosteriorProblem,
     trials: pd.DataFrame,
     settings: PosteriorSettings | None = None,
     *,
@@ -445,7 +446,7 @@ def sample_posterior(
     )
 
 
-def _make_target(problem: Any, trials: pd.DataFrame, settings: PosteriorSettings) -> Any:
+def _make_target(problem: PosteriorProblem, trials: pd.DataFrame, settings: PosteriorSettings) -> Any:
     if settings.surrogate_of == "outputs":
         from .emulated import EmulatorTarget, emulator_training_set
 
@@ -478,7 +479,7 @@ class _Budget:
 
 
 def _refine_and_sample(
-    target: Any, problem: Any, settings: PosteriorSettings, u_all: np.ndarray,
+    target: Any, problem: PosteriorProblem, settings: PosteriorSettings, u_all: np.ndarray,
     ll_all: np.ndarray, lp_u: Callable[[np.ndarray], np.ndarray], rng: np.random.Generator,
     names: list[str], evaluate: Callable[[np.ndarray, str], list[DrawRun]],
     refine_log: list[dict[str, Any]], budget: _Budget,

@@ -34,6 +34,7 @@ import pandas as pd
 from scipy import stats
 
 from .check import CHECK_ALPHA
+from .protocol import PosteriorProblem
 
 __all__ = [
     "CheckOutcome",
@@ -93,7 +94,7 @@ class CheckOutcome:
 
 
 # ------------------------------------------------------------ goodness of fit
-def best_fit_residuals(problem: Any, row: pd.Series) -> pd.DataFrame:
+def best_fit_residuals(problem: PosteriorProblem, row: pd.Series) -> pd.DataFrame:
     """Per-value chi-square contributions of one trial-log row (from its stored predictions)."""
     from ..likelihood import residual_table
     from .emulated import predictions_from_json
@@ -376,7 +377,7 @@ def best_fit(trials: pd.DataFrame, posterior: Any = None,
             "trial": int(trial) if is_trial else None}
 
 
-def run_checks(problem: Any, trials: pd.DataFrame, posterior: Any = None) -> list[CheckOutcome]:
+def run_checks(problem: PosteriorProblem, trials: pd.DataFrame, posterior: Any = None) -> list[CheckOutcome]:
     """All checks of a calibration (no forward run: stored predictions are used).
 
     Parameters

@@ -20,10 +20,8 @@ logged.
 
 from __future__ import annotations
 
-import json
 import math
 import os
-import pickle
 import time
 from collections.abc import Callable
 from concurrent.futures import FIRST_COMPLETED, BrokenExecutor, Executor, Future, wait
@@ -37,8 +35,9 @@ import pandas as pd
 
 from .._version import __version__
 from ..exceptions import ConfigError, ForwardModelError
+from ..fan_out import WORKER_DIED, prediction_of, submit_profiles
 from ..forward.base import Prediction
-from ..trials import TrialLog, nan_if_inf, reason_signature
+from ..trials import TrialLog, reason_signature, trial_row
 from .bounds import BoundHit, warn_on_bounds
 from .engine import Observation, Proposal, Search
 from .progress import SearchProgress
@@ -98,6 +97,7 @@ class _Running:
     futures: dict[str, Future]
     started_at: datetime
     t0: float
+    coefficients: np.ndarray
     done: dict[str, Prediction] = field(default_factory=dict)
 
 
@@ -105,15 +105,6 @@ def _now() -> datetime:
     return datetime.now(UTC)
 
 
-def _is_pickling_error(exc: BaseException) -> bool:
-    if isinstance(exc, pickle.PicklingError):
-        return True
-    text = f"{type(exc).__name__}: {exc}".lower()
-    return "pickl" in text and isinstance(exc, (TypeError, AttributeError, pickle.PicklingError))
-
-
-#: Start of the reason logged for a trial whose worker process died.
-WORKER_DIED = "worker process died"
 #: Default of ``run_search(max_same_failures=...)`` (common practice, no source).
 MAX_SAME_FAILURES = 10
 #: Stop reason after ``max_same_failures`` failures in a row with one reason.
@@ -146,67 +137,14 @@ class _SameFailures:
         return None
 
 
-def _result(future: Future) -> Prediction:
-    try:
-        out = future.result()
-    except BrokenExecutor as exc:
-        from ..executors import spawn_bootstrap_failure
-
-        bootstrap = spawn_bootstrap_failure()
-        if bootstrap is not None:
-            return Prediction.failure("failed", f"{WORKER_DIED}: {bootstrap}")
-        return Prediction.failure(
-            "failed",
-            f"{WORKER_DIED}: {type(exc).__name__}: {exc} (a forward run in flight at the "
-            "same time ended its worker process, e.g. by os._exit or a segfault; wrap "
-            "crash-prone code in profshape.forward.external.ExternalModel)",
-        )
-    except Exception as exc:
-        if _is_pickling_error(exc):
-            raise ForwardModelError(
-                f"the forward model or profile could not be sent to the executor ({exc}); "
-                "define functions at module level, or use profshape.executors.InlineExecutor "
-                "or a dask executor (cloudpickle)."
-            ) from exc
-        return Prediction.failure("failed", f"executor: {type(exc).__name__}: {exc}")
-    if not isinstance(out, Prediction):
-        return Prediction.failure("failed", f"executor returned {type(out).__name__}")
-    return out
-
-
 def _row(problem: Any, run: _Running, outcome: Any, finished_at: datetime, seed: int
          ) -> dict[str, Any]:
-    m = outcome.misfit
-    ok = outcome.ok
-    row: dict[str, Any] = {
-        "trial": run.proposal.trial,
-        "batch": run.proposal.batch,
-        "source": run.source,
-        "status": outcome.status,
-        "reduced_chi2": nan_if_inf(m.reduced_chi2) if ok else math.nan,
-        "chi2": nan_if_inf(m.chi2) if ok else math.nan,
-        "n_data": int(m.n_data),
-        "log_likelihood": nan_if_inf(m.log_likelihood) if ok else math.nan,
-    }
-    for lab in problem.dataset.labels:
-        row[f"misfit__{lab}"] = nan_if_inf(m.per_point.get(lab, math.nan)) if ok else math.nan
-    for key, value in m.per_observable.items():
-        lab, _, obs = key.rpartition("/")  # labels may hold "/", observable names do not
-        row[f"misfit__{lab}__{obs}"] = nan_if_inf(value) if ok else math.nan
-    for name, value in run.proposal.coefficients.items():
-        row[name] = value
-    for name, value in zip(problem.names, run.proposal.u):
-        row[f"u__{name}"] = float(value)
-    preds = {lab: p.to_json_dict() for lab, p in outcome.predictions.items()}
-    row.update(
-        wall_time_s=time.perf_counter() - run.t0,
-        started_at=run.started_at,
-        finished_at=finished_at,
-        error="" if ok else (outcome.reason or outcome.status),
-        seed=seed,
-        version=__version__,
-        predictions=json.dumps(preds, allow_nan=True),
-    )
+    row: dict[str, Any] = {"trial": run.proposal.trial, "batch": run.proposal.batch}
+    row.update(trial_row(problem, run.coefficients, run.proposal.u, status=outcome.status,
+                         reason=outcome.reason, misfit=outcome.misfit,
+                         predictions=outcome.predictions, source=run.source, seed=seed,
+                         wall_time_s=time.perf_counter() - run.t0))
+    row.update(started_at=run.started_at, finished_at=finished_at, version=__version__)
     return row
 
 
@@ -246,14 +184,11 @@ class _Runner:
             If the caller's executor is broken.
         """
         c = np.array([proposal.coefficients[n] for n in self.problem.names])
-        profiles = {lab: self.problem.profile_for(c, lab) for lab in self.problem.dataset.labels}
+        profiles = self.problem.profiles(c)  # the coefficients are checked here, once
         for attempt in range(2):
-            futures = {}
             try:
-                for lab, profile in profiles.items():
-                    futures[lab] = self.executor.submit(
-                        self.problem.forward_model, profile, self.points[lab]
-                    )
+                futures = submit_profiles(self.executor, self.problem.forward_model, profiles,
+                                          self.points)
             except BrokenExecutor as exc:
                 self.broken = exc
                 if self.renew is None or attempt == 1:
@@ -262,7 +197,7 @@ class _Runner:
                 continue
             break
         self.running[proposal.trial] = _Running(
-            proposal, source, futures, _now(), time.perf_counter()
+            proposal, source, futures, _now(), time.perf_counter(), c
         )
 
     def _replace(self) -> None:
@@ -282,12 +217,12 @@ class _Runner:
                     if lab not in run.done and fut.done():
                         if not fut.cancelled() and isinstance(fut.exception(), BrokenExecutor):
                             self.broken = fut.exception()
-                        run.done[lab] = _result(fut)
+                        run.done[lab] = prediction_of(fut)
                 if len(run.done) == len(run.futures):
                     del self.running[trial]
-                    c = np.array([run.proposal.coefficients[n] for n in self.problem.names])
                     preds = {lab: run.done[lab] for lab in run.futures}
-                    outcome = self.problem.outcome(c, preds, time.perf_counter() - run.t0)
+                    outcome = self.problem.outcome(run.coefficients, preds,
+                                                   time.perf_counter() - run.t0)
                     finished.append((run, outcome, _now()))
             if self.broken is not None and self.renew is not None:
                 # every task of a broken pool ends in BrokenProcessPool; shutting the pool

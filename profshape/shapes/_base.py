@@ -218,14 +218,19 @@ class ShapeFamily(ABC):
     def _log10_values(self, c: Any, z: Any, xp: Any) -> Any:
         """log10 of the profile for coefficients ``c`` (n, d) at ``z`` (n_z,) → (n, n_z)."""
 
-    def profile(self, coefficients: Any) -> AnomalousProfile:
-        """The :class:`~profshape.profile.AnomalousProfile` of one coefficient vector."""
-        c = self.validate(coefficients)
+    def profile(self, coefficients: Any, *, validate: bool = True) -> AnomalousProfile:
+        """The :class:`~profshape.profile.AnomalousProfile` of one coefficient vector.
+
+        ``validate=False`` skips the check (see :meth:`validate`) of coefficients
+        that were checked already, e.g. by a calibration problem once per trial.
+        """
+        c = self.validate(coefficients) if validate else np.asarray(coefficients, dtype=float)
         if c.ndim != 1:
             raise InputDataError(f"{self.name}: profile takes one vector; got shape {c.shape}.")
         func = functools.partial(_evaluate_unchecked, self, c)
         return AnomalousProfile(
-            kind=self.kind, function=func, coefficients=self.coefficient_dict(c), family=self.name
+            kind=self.kind, function=func, family=self.name,
+            coefficients={n: float(v) for n, v in zip(self.names, c, strict=True)},
         )
 
 
