@@ -18,6 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from ..atomic_write import atomic_write_bytes
 from ..exceptions import InputDataError
 from ._evaluate import DrawRun, evaluate_many
 from .protocol import PosteriorProblem
@@ -25,13 +26,24 @@ from .result import PosteriorResult
 from .settings import check_levels
 
 __all__ = [
+    "BAND_TABLES",
     "PosteriorBands",
     "band_columns",
+    "band_file",
     "emulated_bands",
     "posterior_bands",
     "profile_band",
     "quantile_band",
 ]
+
+#: The tables of :class:`PosteriorBands`, each saved as :func:`band_file` of its name.
+BAND_TABLES = ("profile", "ion_velocity", "scalars", "draws")
+
+
+def band_file(table: str) -> str:
+    """The file name of a band table in a bands folder, e.g. ``bands_profile.parquet``."""
+    return f"bands_{table}.parquet"
+
 
 #: Emulator draws start at this many and double until the band's quantiles are stable.
 EMULATED_DRAWS_START = 1000
@@ -133,8 +145,10 @@ class PosteriorBands:
         """Write the tables as parquet files in ``folder``."""
         folder = Path(folder)
         folder.mkdir(parents=True, exist_ok=True)
-        for name in ("profile", "ion_velocity", "scalars", "draws"):
-            getattr(self, name).to_parquet(folder / f"bands_{name}.parquet", index=False)
+        for name in BAND_TABLES:
+            table = getattr(self, name)
+            atomic_write_bytes(folder / band_file(name),
+                               lambda tmp, table=table: table.to_parquet(tmp, index=False))
         return folder
 
     @classmethod
@@ -148,8 +162,8 @@ class PosteriorBands:
         """
         folder = Path(folder)
         tables = {}
-        for name in ("profile", "ion_velocity", "scalars", "draws"):
-            path = folder / f"bands_{name}.parquet"
+        for name in BAND_TABLES:
+            path = folder / band_file(name)
             if not path.exists():
                 raise InputDataError(
                     f"bands folder {str(folder)!r}: missing {path.name}; write it with "

@@ -11,10 +11,16 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from ..atomic_write import atomic_write_bytes, atomic_write_text
 from ..exceptions import InputDataError
 from .check import PosteriorCheck
 
-__all__ = ["PosteriorResult"]
+__all__ = ["META_FILE", "SAMPLES_FILE", "PosteriorResult"]
+
+#: The result's metadata (names, MAP, diagnostics, settings) in its folder.
+META_FILE = "posterior.json"
+#: The samples (with ``log_posterior`` and ``realisation``) in its folder.
+SAMPLES_FILE = "posterior_samples.parquet"
 
 
 @dataclass
@@ -110,11 +116,15 @@ class PosteriorResult:
         frame = self.samples.copy()
         frame["log_posterior"] = self.log_posterior
         frame["realisation"] = self.realisation
-        frame.to_parquet(folder / "posterior_samples.parquet", index=False)
-        if len(self.forward_runs):
-            self.forward_runs.to_parquet(folder / "posterior_forward_runs.parquet", index=False)
+        atomic_write_bytes(folder / SAMPLES_FILE, lambda tmp: frame.to_parquet(tmp, index=False))
+        runs = self.forward_runs
+        if len(runs):
+            atomic_write_bytes(folder / "posterior_forward_runs.parquet",
+                               lambda tmp: runs.to_parquet(tmp, index=False))
         if self.check is not None:
-            self.check.table.to_parquet(folder / "posterior_check.parquet", index=False)
+            table = self.check.table
+            atomic_write_bytes(folder / "posterior_check.parquet",
+                               lambda tmp: table.to_parquet(tmp, index=False))
         meta = {
             "names": list(self.names),
             "map_coefficients": self.map_coefficients,
@@ -124,7 +134,7 @@ class PosteriorResult:
             "check": None if self.check is None else _jsonable(self.check.summary()),
             "settings": _jsonable(self.settings),
         }
-        (folder / "posterior.json").write_text(json.dumps(meta, indent=2))
+        atomic_write_text(folder / META_FILE, json.dumps(meta, indent=2))
         return folder
 
     @classmethod
@@ -137,8 +147,8 @@ class PosteriorResult:
             If ``posterior.json`` or ``posterior_samples.parquet`` is missing.
         """
         folder = Path(folder)
-        meta_path = folder / "posterior.json"
-        samples_path = folder / "posterior_samples.parquet"
+        meta_path = folder / META_FILE
+        samples_path = folder / SAMPLES_FILE
         for p in (meta_path, samples_path):
             if not p.exists():
                 raise InputDataError(

@@ -66,7 +66,7 @@ def comparison_table(runs: Sequence[str | Path], criterion: str = "bic") -> tupl
     from ..trials import read_trials
     from .build import build_calibration
     from .folder import config_from_folder
-    from .layout import BANDS_DIR, POSTERIOR_DIR
+    from .layout import BANDS_DIR, BANDS_PROFILE_FILE, POSTERIOR_DIR, POSTERIOR_FILE, TRIALS_FILE
 
     paths = [Path(r) for r in runs]
     if len(paths) < 2:
@@ -74,18 +74,18 @@ def comparison_table(runs: Sequence[str | Path], criterion: str = "bic") -> tupl
     labels = _labels(paths)
     entries, posteriors, bands, best_trials, intervals = [], {}, {}, {}, {}
     for label, run in zip(labels, paths, strict=True):
-        if not (run / "trials.parquet").exists():
+        if not (run / TRIALS_FILE).exists():
             raise InputDataError(f"compare: {run} has no trials.parquet; give calibration output "
                                  "folders.")
         cal = build_calibration(config_from_folder(run), run, progress=False)
-        trials = read_trials(run / "trials.parquet")
+        trials = read_trials(run / TRIALS_FILE)
         entries.append((label, cal.problem, trials))
         post = PosteriorResult.load(run / POSTERIOR_DIR) \
-            if (run / POSTERIOR_DIR / "posterior.json").exists() else None
+            if (run / POSTERIOR_DIR / POSTERIOR_FILE).exists() else None
         if post is not None:
             posteriors[label] = post
         bands[label] = PosteriorBands.load(run / BANDS_DIR).profile \
-            if (run / BANDS_DIR / "bands_profile.parquet").exists() else None
+            if (run / BANDS_DIR / BANDS_PROFILE_FILE).exists() else None
         ok = trials[trials["status"] == "ok"]
         best_trials[label] = int(ok.loc[ok["reduced_chi2"].idxmin(), "trial"]) if len(ok) else None
         intervals[label] = _intervals(post)

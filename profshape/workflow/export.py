@@ -129,18 +129,18 @@ def closure_frame(run: str | Path, cal: Any = None) -> tuple[pd.DataFrame, dict[
         If ``run`` is not a calibration folder or has no successful trial.
     """
     from ..trials import read_trials
-    from .layout import BANDS_DIR
+    from .layout import BANDS_DIR, BANDS_PROFILE_FILE, RUN_FILE, TRIALS_FILE
 
     run = Path(run)
-    if not (run / "trials.parquet").exists():
+    if not (run / TRIALS_FILE).exists():
         raise InputDataError(f"export: {run} has no trials.parquet; give the output folder of a "
                              "calibration (`profshape calibrate` or `profshape demo`).")
     cal = cal if cal is not None else _calibration(run)
     problem = cal.problem
-    trials = read_trials(run / "trials.parquet")
+    trials = read_trials(run / TRIALS_FILE)
     row = _best_row(trials)
     best_c = np.array([float(row[n]) for n in problem.names])
-    band_path = run / BANDS_DIR / "bands_profile.parquet"
+    band_path = run / BANDS_DIR / BANDS_PROFILE_FILE
     bands = pd.read_parquet(band_path) if band_path.exists() else None
     z = _grid(cal, bands)
     field = getattr(cal.device, "magnetic_field", None)
@@ -193,7 +193,7 @@ def closure_frame(run: str | Path, cal: Any = None) -> tuple[pd.DataFrame, dict[
     if bad:
         raise InputDataError(f"export: non-finite values in {bad} of {run}; the run's band files "
                              "are damaged: rebuild them with `profshape resume` (no new trials).")
-    info = json.loads((run / "run.json").read_text(encoding="utf-8")) if (run / "run.json").exists() \
+    info = json.loads((run / RUN_FILE).read_text(encoding="utf-8")) if (run / RUN_FILE).exists() \
         else {}
     attributes: dict[str, Any] = {
         "title": str(cal.config.data.get("title") or ""),

@@ -9,8 +9,12 @@ finished, the posterior, bands, predictions, figures, summary and report.
 
 from __future__ import annotations
 
+from ..posterior.bands import band_file
+from ..posterior.result import META_FILE
+
 __all__ = [
-    "BANDS_DIR", "BANDS_EMULATED_FILE", "CHECKS_FILE", "CONFIG_COPY", "FIGURES_DIR", "NOTES_FILE",
+    "BANDS_DIR", "BANDS_EMULATED_FILE", "BANDS_PROFILE_FILE", "CHECKS_FILE", "CONFIG_COPY",
+    "FIGURES_DIR", "NOTES_FILE",
     "POSTERIOR_DIR", "POSTERIOR_FILE", "PREDICTIONS_FILE", "REPORT_FILE", "RUN_FILE",
     "SEARCH_FILE", "STAGE_FILE", "SUMMARY_FILE", "TRIALS_FILE",
 ]
@@ -26,7 +30,9 @@ SEARCH_FILE = "search.json"
 #: The folder of :meth:`profshape.posterior.PosteriorResult.save`.
 POSTERIOR_DIR = "posterior"
 #: The posterior's metadata inside :data:`POSTERIOR_DIR` (its presence marks a posterior).
-POSTERIOR_FILE = "posterior.json"
+POSTERIOR_FILE = META_FILE
+#: The profile band inside :data:`BANDS_DIR` (its presence marks the bands).
+BANDS_PROFILE_FILE = band_file("profile")
 #: What the posterior stage spent, inside :data:`POSTERIOR_DIR`.
 STAGE_FILE = "stage.json"
 #: The folder of :meth:`profshape.posterior.PosteriorBands.save`.

@@ -22,9 +22,12 @@ import pandas as pd
 from .._version import __version__
 from ..atomic_write import atomic_write_json, atomic_write_text, json_safe
 from ..exceptions import InputDataError, ProfshapeWarning
+from ..posterior.bands import BAND_TABLES, band_file
+from ..posterior.result import SAMPLES_FILE
 from .build import Calibration, ReportInputs, report_inputs
 from .layout import (
     BANDS_DIR,
+    BANDS_PROFILE_FILE,
     CHECKS_FILE,
     FIGURES_DIR,
     NOTES_FILE,
@@ -48,7 +51,7 @@ def _load_optional(out: Path) -> tuple[Any, Any, pd.DataFrame | None]:
     posterior = bands = predictions = None
     if (out / POSTERIOR_DIR / POSTERIOR_FILE).exists():
         posterior = PosteriorResult.load(out / POSTERIOR_DIR)
-    if (out / BANDS_DIR / "bands_profile.parquet").exists():
+    if (out / BANDS_DIR / BANDS_PROFILE_FILE).exists():
         bands = PosteriorBands.load(out / BANDS_DIR)
     if (out / PREDICTIONS_FILE).exists():
         predictions = pd.read_csv(out / PREDICTIONS_FILE, keep_default_na=False,
@@ -123,7 +126,7 @@ def write_outputs(out: str | Path, cal: Calibration | ReportInputs | None = None
             "summary": json_safe(posterior.summary().to_dict("records")),
             "diagnostics": json_safe(posterior.diagnostics),
             "check": None if posterior.check is None else json_safe(posterior.check.summary()),
-            "samples_file": f"{POSTERIOR_DIR}/posterior_samples.parquet",
+            "samples_file": f"{POSTERIOR_DIR}/{SAMPLES_FILE}",
             "effective_sample_size": posterior.diagnostics.get("effective_sample_size_total"),
             "autocorr_time_steps": posterior.diagnostics.get("autocorr_time_steps"),
             "forward_runs": stage.get("forward_runs"),
@@ -131,8 +134,7 @@ def write_outputs(out: str | Path, cal: Calibration | ReportInputs | None = None
             "emulated_bands": stage.get("emulated_bands"),
         }
     if bands is not None:
-        summary["bands_files"] = {name: f"{BANDS_DIR}/bands_{name}.parquet"
-                                  for name in ("profile", "ion_velocity", "scalars", "draws")}
+        summary["bands_files"] = {name: f"{BANDS_DIR}/{band_file(name)}" for name in BAND_TABLES}
         summary["band_levels"] = list(bands.levels)
     atomic_write_json(out / SUMMARY_FILE, json_safe(summary))
     atomic_write_text(out / REPORT_FILE, _report_markdown(summary, posterior, bands, predictions, trials))
