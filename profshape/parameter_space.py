@@ -18,7 +18,7 @@ import numpy as np
 
 from .exceptions import InputDataError
 
-__all__ = ["Parameter", "bounds_of", "check_in_bounds", "from_unit", "to_unit"]
+__all__ = ["Parameter", "ParameterSpace", "bounds_of", "check_in_bounds", "from_unit", "to_unit"]
 
 
 #: Relative slack allowed on bounds before a coefficient counts as outside them.
@@ -122,3 +122,39 @@ def from_unit(u: Any, bounds: Any) -> Any:
     """Unit-cube values (..., d) to physical values; a torch tensor stays one."""
     b, u = _as_bounds_of(bounds, u)
     return b[:, 0] + u * (b[:, 1] - b[:, 0])
+
+
+class ParameterSpace:
+    """Names, units, bounds and the unit-cube map of an ordered tuple of parameters.
+
+    A base for what owns parameters (a shape family, a calibration problem):
+    subclasses provide :attr:`parameters`.
+    """
+
+    @property
+    def parameters(self) -> tuple[Parameter, ...]:
+        """The parameters, in coefficient order."""
+        raise NotImplementedError
+
+    @property
+    def names(self) -> tuple[str, ...]:
+        """Parameter names, in coefficient order."""
+        return tuple(p.name for p in self.parameters)
+
+    @property
+    def units(self) -> tuple[str, ...]:
+        """Parameter units, in coefficient order."""
+        return tuple(p.unit for p in self.parameters)
+
+    @property
+    def bounds(self) -> np.ndarray:
+        """Bounds of shape (d, 2): columns lower, upper."""
+        return bounds_of(self.parameters)
+
+    def to_unit(self, coefficients: Any) -> Any:
+        """Coefficients (physical units, ..., d) to the unit cube [0, 1]^d (numpy or torch)."""
+        return to_unit(coefficients, self.bounds)
+
+    def from_unit(self, unit: Any) -> Any:
+        """Unit-cube points (..., d) to coefficients (physical units; numpy or torch)."""
+        return from_unit(unit, self.bounds)

@@ -18,7 +18,7 @@ from .fan_out import run_profiles
 from .forward.base import ForwardModel, Prediction
 from .likelihood import LikelihoodSettings, Misfit, evaluate_misfit
 from .operating_point import OperatingPoint
-from .parameter_space import Parameter, bounds_of, check_in_bounds, from_unit, to_unit
+from .parameter_space import Parameter, ParameterSpace, check_in_bounds, from_unit, to_unit
 from .profile import AnomalousProfile
 from .shapes import ShapeFamily
 
@@ -59,7 +59,7 @@ class TrialOutcome:
         return self.status == "ok"
 
 
-class CalibrationProblem:
+class CalibrationProblem(ParameterSpace):
     """What is calibrated against what.
 
     The search space is the shape family's coefficients, followed by the
@@ -154,21 +154,6 @@ class CalibrationProblem:
     def parameters(self) -> tuple[Parameter, ...]:
         """All searched parameters: family, then per-point scales, then discrepancy."""
         return tuple(self.family.parameters) + self._extra
-
-    @property
-    def names(self) -> tuple[str, ...]:
-        """Names of all searched parameters."""
-        return tuple(p.name for p in self.parameters)
-
-    @property
-    def units(self) -> tuple[str, ...]:
-        """Units of all searched parameters."""
-        return tuple(p.unit for p in self.parameters)
-
-    @property
-    def bounds(self) -> np.ndarray:
-        """Bounds of shape (dim, 2)."""
-        return bounds_of(self.parameters)
 
     @property
     def dim(self) -> int:

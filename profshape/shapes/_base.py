@@ -11,14 +11,14 @@ from typing import Any
 import numpy as np
 
 from ..exceptions import InputDataError
-from ..parameter_space import Parameter, bounds_of, check_in_bounds, from_unit, to_unit
+from ..parameter_space import Parameter, ParameterSpace, check_in_bounds
 from ..profile import AnomalousProfile, ProfileKind
 from ._xp import namespace_of, to_backend
 
 __all__ = ["Parameter", "ShapeFamily", "check_in_bounds"]
 
 
-class ShapeFamily(ABC):
+class ShapeFamily(ParameterSpace, ABC):
     """Base of all shape families.
 
     A family maps a coefficient vector of length :attr:`n_coefficients` to an
@@ -52,21 +52,6 @@ class ShapeFamily(ABC):
     def parameters(self) -> tuple[Parameter, ...]:
         """The family's parameters, in coefficient order."""
         return self._parameters
-
-    @property
-    def names(self) -> tuple[str, ...]:
-        """Parameter names, in coefficient order."""
-        return tuple(p.name for p in self._parameters)
-
-    @property
-    def units(self) -> tuple[str, ...]:
-        """Parameter units, in coefficient order."""
-        return tuple(p.unit for p in self._parameters)
-
-    @property
-    def bounds(self) -> np.ndarray:
-        """Bounds of shape (n_coefficients, 2): columns lower, upper."""
-        return bounds_of(self._parameters)
 
     @property
     def n_coefficients(self) -> int:
@@ -165,14 +150,7 @@ class ShapeFamily(ABC):
         return {n: float(v) for n, v in zip(self.names, c, strict=True)}
 
     # ---------------------------------------------------------------- unit cube
-    def to_unit(self, coefficients: Any) -> Any:
-        """Map coefficients (physical units) to the unit cube [0, 1]^d (numpy or torch)."""
-        return to_unit(coefficients, self.bounds)
-
-    def from_unit(self, unit: Any) -> Any:
-        """Map unit-cube points to coefficients (physical units; numpy or torch)."""
-        return from_unit(unit, self.bounds)
-
+    # to_unit and from_unit: see ParameterSpace
     def sample(self, n: int, seed: int | None = None) -> np.ndarray:
         """``n`` coefficient vectors drawn uniformly within the bounds, shape (n, d)."""
         rng = np.random.default_rng(seed)

@@ -58,16 +58,7 @@ def finish(cal: Calibration, result: Any, out: str | Path, executor: Executor | 
            skip_posterior: str | None = None) -> dict[str, Any]:
     """The stages after a search: the posterior stage's files, then the report.
 
-    Parameters
-    ----------
-    cal : Calibration
-    result : profshape.search.SearchResult
-    out : path-like
-        The calibration's output folder.
-    executor : Executor, optional
-        Runs the posterior's forward runs in parallel.
-    skip_posterior : str, optional
-        Why no posterior is sampled (noted in the report), e.g. a flat objective.
+    The parameters are those of :func:`profshape.workflow.after_search.run_after_search`.
 
     Returns
     -------
