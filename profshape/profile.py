@@ -8,7 +8,8 @@ from dataclasses import dataclass, field
 from typing import Literal
 
 import numpy as np
-from scipy import constants
+
+from . import constants
 
 __all__ = ["AnomalousProfile", "ProfileKind", "electron_gyrofrequency"]
 
