@@ -24,7 +24,7 @@ from __future__ import annotations
 
 import difflib
 import math
-from collections.abc import Callable, Iterable, Mapping
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import MISSING, fields
 from numbers import Integral, Real
 from typing import Any, ClassVar, Literal
@@ -201,7 +201,7 @@ class Options(Constraint):
         return did_you_mean(value, self.options)
 
 
-ConstraintList = list[Constraint | None]
+ConstraintList = Sequence[Constraint | None]
 
 
 def constraint_text(constraints: ConstraintList) -> str:

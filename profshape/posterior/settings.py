@@ -9,7 +9,7 @@ from typing import Any, Literal
 from ..exceptions import InputDataError
 from ..validation import Constraint, InstanceOf, Interval, Options, validate_dataclass
 
-__all__ = ["CONSTRAINTS", "PosteriorSettings", "check_levels"]
+__all__ = ["CONSTRAINTS", "FIXES", "PosteriorSettings", "check_levels"]
 
 SamplingMethod = Literal["surrogate", "exact"]
 SurrogateOf = Literal["outputs", "log_likelihood"]
@@ -45,7 +45,7 @@ CONSTRAINTS: dict[str, list[Constraint | None]] = {
     "n_ensembles": [_at_least(1)],
     "seed": [_at_least(0), None],
 }
-_FIXES = {
+FIXES = {
     "n_walkers": "Use an even number such as 32.",
     "n_steps": "Use a few thousand steps.",
     "burn_in": "Use 0 for no burn-in.",
@@ -202,7 +202,7 @@ class PosteriorSettings:
     seed: int | None = 0
 
     def __post_init__(self) -> None:
-        validate_dataclass(self, CONSTRAINTS, fixes=_FIXES)
+        validate_dataclass(self, CONSTRAINTS, fixes=FIXES)
         nw = self.n_walkers
         if nw % 2:
             raise InputDataError(

@@ -11,7 +11,7 @@ import numpy as np
 from ..exceptions import ConfigError
 from ..validation import Constraint, InstanceOf, Interval, Options, validate_dataclass
 
-__all__ = ["CONSTRAINTS", "SearchSettings"]
+__all__ = ["CONSTRAINTS", "FIXES", "SearchSettings"]
 
 ObjectiveTransform = Literal["log", "identity"]
 Strategy = Literal["composite", "global", "trust_region", "hybrid"]
@@ -42,9 +42,9 @@ CONSTRAINTS: dict[str, list[Constraint | None]] = {
     "progress": [InstanceOf(bool)],
     "asynchronous": [InstanceOf(bool)],
 }
-_FIXES = {name: f"Give {name}={c[0].left:g} or more." for name, c in CONSTRAINTS.items()
+FIXES = {name: f"Give {name}={c[0].left:g} or more." for name, c in CONSTRAINTS.items()
           if isinstance(c[0], Interval) and c[0].kind is Integral and c[0].left is not None}
-_FIXES["target_reduced_chi2"] = "(the noise floor is 1)"
+FIXES["target_reduced_chi2"] = "(the noise floor is 1)"
 
 
 @dataclass(frozen=True)
@@ -162,7 +162,7 @@ class SearchSettings:
     trust_region_warmup: int | None = None
 
     def __post_init__(self) -> None:
-        validate_dataclass(self, CONSTRAINTS, fixes=_FIXES, error=ConfigError)
+        validate_dataclass(self, CONSTRAINTS, fixes=FIXES, error=ConfigError)
         if self.raw_samples < self.num_restarts:
             raise ConfigError(
                 f"SearchSettings.raw_samples ({self.raw_samples}) must be >= num_restarts "
