@@ -87,7 +87,7 @@ def main() -> None:
     here = Path(__file__).resolve().parents[1] / "data_demo"
     if (here / "demo.toml").exists() and here != folder:
         # a source checkout: its own demo files, with the same overrides
-        import profshape.cli as cli_mod
+        import profshape.cli.calibration as cli_mod
 
         real = cli_mod.demo_data_folder
         cli_mod.demo_data_folder = lambda: here

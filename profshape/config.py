@@ -8,21 +8,34 @@ example, is in the README ("Calibration file").
 
 from __future__ import annotations
 
-import difflib
 import math
 import re
 import tomllib
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
+from numbers import Integral, Real
 from pathlib import Path
 from typing import Any
 
 from .exceptions import ConfigError, InputDataError
+from .posterior.settings import CONSTRAINTS as POSTERIOR_CONSTRAINTS
+from .posterior.settings import FIXES as POSTERIOR_FIXES
+from .posterior.settings import PosteriorSettings
+from .search.settings import CONSTRAINTS as SEARCH_CONSTRAINTS
+from .search.settings import FIXES as SEARCH_FIXES
+from .search.settings import SearchSettings
+from .validation import (
+    Constraint,
+    InstanceOf,
+    Interval,
+    Options,
+    dataclass_defaults,
+    did_you_mean,
+    validate_value,
+)
 
-__all__ = ["FIGURE_FORMATS", "MAXIMA", "CalibrationConfig", "did_you_mean", "load_config",
-           "parse_config"]
-
-_NUMBER = (int, float)
+__all__ = ["FIGURE_FORMATS", "MAXIMA", "SCHEMA", "CalibrationConfig", "Key", "did_you_mean",
+           "load_config", "one_based", "parse_config"]
 
 #: Stated maxima of size-like settings, checked where the file enters (the memory or
 #: time a value beyond them would take is never what was meant; common practice, no
@@ -55,104 +68,140 @@ MAXIMA: dict[str, int] = {
 #: Figure formats accepted in ``[output] figures`` (all written by matplotlib).
 FIGURE_FORMATS = ("png", "svg", "pdf", "eps", "ps", "jpg", "jpeg", "tif", "tiff", "svgz")
 
-# Schema: key -> (types, required, default). A dict value is a sub-table schema;
-# the special key "*" accepts any key (free-form tables checked elsewhere).
-_SCHEMA: dict[str, Any] = {
-    "title": ((str,), False, ""),
-    "device": {"*": None},
-    "operating_points": "point-list",
-    "data_folder": ((str,), False, None),
+
+@dataclass(frozen=True)
+class Key:
+    """One key of the calibration file: its constraints (:mod:`profshape.validation`),
+    its default when absent, whether it is required, and a fix added to its errors."""
+
+    constraints: Sequence[Constraint | None]
+    default: Any = None
+    required: bool = False
+    fix: str = ""
+
+
+# Shorthands for the file's own keys.
+_STR: Sequence[Constraint | None] = [InstanceOf(str)]
+_BOOL: Sequence[Constraint | None] = [InstanceOf(bool, name="true or false")]
+_ARRAY: Sequence[Constraint | None] = [InstanceOf(list)]
+_NUMBER: Sequence[Constraint | None] = [Interval(Real, None, None)]
+
+
+def _count(low: int) -> Sequence[Constraint | None]:
+    return [Interval(Integral, low, None, closed="left")]
+
+
+def _settings_keys(cls: type, constraints: Mapping[str, Sequence[Constraint | None]],
+                   names: tuple[str, ...], fixes: Mapping[str, str],
+                   file_defaults: Mapping[str, Any] | None = None) -> dict[str, Key]:
+    """Keys of a section that are fields of settings dataclass ``cls``: the class's own
+    constraints and defaults (``file_defaults`` only where the file means otherwise)."""
+    base = dataclass_defaults(cls)
+    own = dict(file_defaults or {})
+    return {n: Key([c for c in constraints[n] if c is not None],
+                   own[n] if n in own else base.get(n), fix=fixes.get(n, "")) for n in names}
+
+
+#: Special entries: a free-form table (checked where it is used), an array of
+#: operating-point tables, an array of start tables.
+FREE: dict[str, Any] = {"*": None}
+POINT_LIST = "point-list"
+START_LIST = "start-list"
+
+#: The calibration file: table -> {key: Key | sub-table | special}. To add a key,
+#: add a ``Key`` here (a settings-class field: add it to that class's ``CONSTRAINTS``
+#: and to the names passed to ``_settings_keys``), document it in the README's
+#: calibration-file reference and in ``profshape.template``.
+SCHEMA: dict[str, Any] = {
+    "title": Key(_STR, ""),
+    "device": FREE,
+    "operating_points": POINT_LIST,
+    "data_folder": Key(_STR),
     "shape": {
-        "family": ((str,), True, None),
-        "options": {"*": None},
-        "bounds": {"*": None},
-        "start": "start-list",
+        "family": Key(_STR, required=True),
+        "options": FREE,
+        "bounds": FREE,
+        "start": START_LIST,
     },
     "forward_model": {
-        "kind": ((str,), False, "builtin"),
-        "solver": {"*": None},
-        "command": ((list,), False, None),
-        "timeout_s": (_NUMBER, False, 600.0),
-        "retries": ((int,), False, 0),
-        "grid_points": ((int,), False, 251),
-        "grid_z_m": ((list,), False, None),
-        "version": ((str,), False, "0"),
-        "cache": ((bool,), False, True),
+        "kind": Key([Options(str, ("builtin", "external"))], "builtin"),
+        "solver": FREE,  # profshape.solver.settings.SolverSettings, checked there
+        "command": Key(_ARRAY),
+        "timeout_s": Key([Interval(Real, 0, None, closed="neither")], 600.0,
+                         fix="Give a time in seconds, e.g. 600."),
+        "retries": Key(_count(0), 0),
+        "grid_points": Key(_count(2), 251),
+        "grid_z_m": Key(_ARRAY),
+        "version": Key(_STR, "0"),
+        "cache": Key(_BOOL, True),
     },
     "likelihood": {
-        "discrepancy_sigma_m_s": (_NUMBER, False, 0.0),
-        "fit_discrepancy_m_s": ((list,), False, None),
-        "scalar_discrepancy_relative": (_NUMBER, False, 0.0),
-        "use_position_uncertainty": ((bool,), False, True),
-        "free_scale_per_point": ((bool,), False, False),
-        "scale_bounds_log10": ((list,), False, [-1.0, 1.0]),
-        "weights": {"*": None},
+        "discrepancy_sigma_m_s": Key(_NUMBER, 0.0),
+        "fit_discrepancy_m_s": Key(_ARRAY),
+        "scalar_discrepancy_relative": Key(_NUMBER, 0.0),
+        "use_position_uncertainty": Key(_BOOL, True),
+        "free_scale_per_point": Key(_BOOL, False),
+        "scale_bounds_log10": Key(_ARRAY, [-1.0, 1.0]),
+        "weights": FREE,
     },
     "search": {
-        "budget": ((int,), False, 40),
-        "batch_size": ((int,), False, 1),
-        "n_initial": ((int,), False, None),
-        "target_reduced_chi2": (_NUMBER, False, None),
-        "patience": ((int,), False, None),
-        "seed": ((int,), False, 0),
-        "num_restarts": ((int,), False, None),
-        "raw_samples": ((int,), False, None),
-        "strategy": ((str,), False, None),
-        "trust_region_warmup": ((int,), False, None),
-        "stop_after_failures": ((int,), False, 10),
+        **_settings_keys(SearchSettings, SEARCH_CONSTRAINTS,
+                         ("budget", "batch_size", "n_initial", "target_reduced_chi2", "patience",
+                          "seed", "num_restarts", "raw_samples", "strategy",
+                          "trust_region_warmup"),
+                         SEARCH_FIXES, file_defaults={"budget": 40}),
+        # a run_search argument, not a SearchSettings field
+        "stop_after_failures": Key(_count(0), 10,
+                                   fix="Use 0 to never stop for repeated failures."),
     },
     "workers": {
-        "n_workers": ((int,), False, 1),
-        "scheduler_address": ((str,), False, None),
+        "n_workers": Key(_count(1), 1),
+        "scheduler_address": Key(_STR),
         # batch-scheduled clusters through dask-jobqueue (profshape.workers)
-        "kind": ((str,), False, "local"),
-        "jobs": ((int,), False, 1),
-        "cores": ((int,), False, 1),
-        "memory": ((str,), False, "4GB"),
-        "walltime": ((str,), False, "01:00:00"),
-        "queue": ((str,), False, None),
-        "account": ((str,), False, None),
-        "job_directives": ((list,), False, []),
-        "python": ((str,), False, None),
+        "kind": Key(_STR, "local"),
+        "jobs": Key(_count(1), 1),
+        "cores": Key(_count(1), 1),
+        "memory": Key(_STR, "4GB"),
+        "walltime": Key(_STR, "01:00:00"),
+        "queue": Key(_STR),
+        "account": Key(_STR),
+        "job_directives": Key(_ARRAY, []),
+        "python": Key(_STR),
     },
     "reference": {  # a hand-tuned profile to compare with (profshape.reference)
-        "file": ((str,), False, None),
-        "quantity": ((str,), False, None),
-        "label": ((str,), False, "reference"),
+        "file": Key(_STR),
+        "quantity": Key(_STR),
+        "label": Key(_STR, "reference"),
     },
     "posterior": {
-        "enabled": ((bool,), False, True),
-        "n_walkers": ((int,), False, None),
-        "n_steps": ((int,), False, None),
-        "n_check_draws": ((int,), False, None),
-        "burn_in": ((int,), False, None),
-        "thin": ((int,), False, None),
-        "n_gp_draws": ((int,), False, None),
-        "n_refine_rounds": ((int,), False, None),
-        "n_refine_draws": ((int,), False, None),
-        "n_band_draws": ((int,), False, 24),
-        "forward_budget": ((int,), False, None),
-        "refine_threshold_nats": (_NUMBER, False, None),
-        "band_levels": ((list,), False, [0.68, 0.95]),
-        "seed": ((int,), False, None),
-        "predict": "point-list",
+        "enabled": Key(_BOOL, True),
+        **_settings_keys(PosteriorSettings, POSTERIOR_CONSTRAINTS,
+                         ("n_walkers", "n_steps", "n_check_draws", "burn_in", "thin",
+                          "n_gp_draws", "n_refine_rounds", "n_refine_draws", "forward_budget",
+                          "refine_threshold_nats", "seed"),
+                         POSTERIOR_FIXES, file_defaults={"seed": None}),  # None: the search's
+        "n_band_draws": Key(_count(1), 24),
+        "band_levels": Key(_ARRAY, list(dataclass_defaults(PosteriorSettings)["band_levels"])),
+        "predict": POINT_LIST,
     },
     "output": {
-        "folder": ((str,), False, None),
-        "figures": ((list,), False, ["png", "svg"]),
+        "folder": Key(_STR),
+        "figures": Key(_ARRAY, ["png", "svg"]),
     },
 }
+_SCHEMA = SCHEMA  # the former private name
 
-_POINT_SCHEMA: dict[str, Any] = {
-    "label": ((str,), True, None),
-    "discharge_voltage_V": (_NUMBER, True, None),
-    "anode_mass_flow_kg_s": (_NUMBER, True, None),
-    "propellant": ((str,), False, None),  # None: xenon, with a warning
-    "magnetic_field_scale": (_NUMBER, False, 1.0),
-    "background_pressure_Pa": (_NUMBER, False, 0.0),
-    "background_temperature_K": (_NUMBER, False, 300.0),
-    "ion_velocity_file": ((str,), False, None),
-    "scalars": {"*": None},
+#: One ``[[operating_points]]`` (or ``[[posterior.predict]]``) table.
+POINT_SCHEMA: dict[str, Any] = {
+    "label": Key(_STR, required=True),
+    "discharge_voltage_V": Key(_NUMBER, required=True),
+    "anode_mass_flow_kg_s": Key(_NUMBER, required=True),
+    "propellant": Key(_STR),  # None: xenon, with a warning
+    "magnetic_field_scale": Key(_NUMBER, 1.0),
+    "background_pressure_Pa": Key(_NUMBER, 0.0),
+    "background_temperature_K": Key(_NUMBER, 300.0),
+    "ion_velocity_file": Key(_STR),
+    "scalars": FREE,
 }
 
 
@@ -251,21 +300,25 @@ def _location(path: Path, text: str, key: str) -> str:
     return f"{path}: key {shown!r}" + (f" ({'; '.join(where)})" if where else "")
 
 
-def did_you_mean(name: str, known: Any) -> str:
-    """`` (did you mean 'x'?)`` for the closest of ``known`` (difflib), or ``""``."""
-    near = difflib.get_close_matches(str(name), [str(k) for k in known], n=1, cutoff=0.6)
-    return f" (did you mean {near[0]!r}?)" if near else ""
+def one_based(key: str) -> str:
+    """``key`` with array indices counted from 1 (``operating_points[0]`` -> ``[1]``)."""
+    return _one_based(key)
 
 
-def _type_name(types: tuple[type, ...]) -> str:
-    if set(types) == {int, float}:
-        return "number"
-    names = {int: "integer", float: "number", str: "string", bool: "true/false", list: "array"}
-    return " or ".join(dict.fromkeys(names.get(t, t.__name__) for t in types))
-
-
-def _article(noun: str) -> str:
-    return ("an " if noun[0] in "aeiou" else "a ") + noun
+def _check_key(value: Any, spec: Key, dotted: str, cfg: CalibrationConfig) -> Any:
+    if value is None:
+        if spec.required:
+            raise cfg.error(dotted, "is required but missing.")
+        return spec.default
+    try:
+        value = validate_value("", value, list(spec.constraints), fix=spec.fix, error=ConfigError)
+    except ConfigError as exc:
+        raise cfg.error(dotted, str(exc).strip()) from None
+    top = MAXIMA.get(re.sub(r"\[\d+\]", "", dotted))
+    if top is not None and isinstance(value, int) and value > top:
+        raise cfg.error(dotted, f"must be at most {top:,}; got {value:,}. This limit "
+                        "keeps a typo from exhausting memory or time; lower the value.")
+    return value
 
 
 def _check_table(table: Any, schema: Mapping[str, Any], where: str, cfg: CalibrationConfig) -> dict:
@@ -286,38 +339,23 @@ def _check_table(table: Any, schema: Mapping[str, Any], where: str, cfg: Calibra
         value = table.get(key)
         if isinstance(spec, dict):
             out[key] = _check_table(value if value is not None else {}, spec, dotted, cfg)
-        elif spec == "point-list":
+        elif spec == POINT_LIST:
             out[key] = _check_points(value, dotted, cfg) if value is not None else []
-        elif spec == "start-list":
+        elif spec == START_LIST:
             tables = isinstance(value, list) and all(isinstance(v, dict) for v in value)
             if value is not None and not tables:
                 raise cfg.error(dotted, "must be an array of tables ([[shape.start]]) of coefficients "
                                 "by name.")
             out[key] = value or []
         else:
-            types, required, default = spec
-            if value is None:
-                if required:
-                    raise cfg.error(dotted, "is required but missing.")
-                out[key] = default
-                continue
-            ok = isinstance(value, types) and not (isinstance(value, bool) and bool not in types)
-            if not ok:
-                raise cfg.error(dotted, f"must be {_article(_type_name(types))}; got {value!r}.")
-            if isinstance(value, float) and not math.isfinite(value):
-                raise cfg.error(dotted, f"must be finite; got {value!r}.")
-            top = MAXIMA.get(re.sub(r"\[\d+\]", "", dotted))
-            if top is not None and isinstance(value, int) and value > top:
-                raise cfg.error(dotted, f"must be at most {top:,}; got {value:,}. This limit "
-                                "keeps a typo from exhausting memory or time; lower the value.")
-            out[key] = value
+            out[key] = _check_key(value, spec, dotted, cfg)
     return out
 
 
 def _check_points(value: Any, where: str, cfg: CalibrationConfig) -> list[dict]:
     if not isinstance(value, list) or not all(isinstance(v, dict) for v in value):
         raise cfg.error(where, "must be an array of tables ([[operating_points]]).")
-    return [_check_table(v, _POINT_SCHEMA, f"{where}[{i}]", cfg) for i, v in enumerate(value)]
+    return [_check_table(v, POINT_SCHEMA, f"{where}[{i}]", cfg) for i, v in enumerate(value)]
 
 
 def parse_config(text: str, path: str | Path = "<string>", base_dir: str | Path | None = None
@@ -340,7 +378,7 @@ def parse_config(text: str, path: str | Path = "<string>", base_dir: str | Path 
         raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ConfigError(f"{path}: not valid TOML: {exc}") from None
-    cfg.data = _check_table(raw, _SCHEMA, "", cfg)
+    cfg.data = _check_table(raw, SCHEMA, "", cfg)
     if not cfg.data["operating_points"] and not cfg.data["data_folder"]:
         raise ConfigError(
             f"{path}: no data: give [[operating_points]] tables (with ion_velocity_file and/or "
@@ -348,31 +386,17 @@ def parse_config(text: str, path: str | Path = "<string>", base_dir: str | Path 
         )
     if cfg.data["operating_points"] and cfg.data["data_folder"]:
         raise cfg.error("data_folder", "give either data_folder or [[operating_points]], not both.")
-    kind = cfg.data["forward_model"]["kind"]
-    if kind not in ("builtin", "external"):
-        raise cfg.error("forward_model.kind", f"must be 'builtin' or 'external'; got {kind!r}.")
-    if kind == "external" and not cfg.data["forward_model"]["command"]:
+    if cfg.data["forward_model"]["kind"] == "external" and not cfg.data["forward_model"]["command"]:
         raise cfg.error("forward_model.command", "is required when kind = 'external' "
                         "(an array of arguments, e.g. [\"./my_code\", \"{input}\"]).")
     levels = cfg.data["posterior"]["band_levels"]
-    if not levels or not all(isinstance(v, _NUMBER) and 0 < v < 1 for v in levels):
+    if not levels or not all(_number(v) and 0 < v < 1 for v in levels):
         raise cfg.error("posterior.band_levels", f"must be numbers in (0, 1); got {levels!r}.")
-    for key in ("budget", "batch_size"):
-        if cfg.data["search"][key] < 1:
-            raise cfg.error(f"search.{key}", f"must be >= 1; got {cfg.data['search'][key]!r}.")
     fm = cfg.data["forward_model"]
-    if not fm["timeout_s"] > 0:
-        raise cfg.error("forward_model.timeout_s", f"must be > 0 [s]; got {fm['timeout_s']!r}.")
-    if fm["retries"] < 0:
-        raise cfg.error("forward_model.retries", f"must be >= 0; got {fm['retries']!r}.")
-    if fm["grid_points"] < 2:
-        raise cfg.error("forward_model.grid_points", f"must be >= 2; got {fm['grid_points']!r}.")
     if fm["grid_z_m"] is not None:
         _check_pair(cfg, "forward_model.grid_z_m", fm["grid_z_m"], "[z_start_m, z_end_m]",
                     low=0.0)
-    if cfg.data["workers"]["n_workers"] < 1:
-        raise cfg.error("workers.n_workers", "must be >= 1.")
-    _check_values(cfg)
+    _check_values(cfg, raw)
     from .reference import check_reference_table
     from .workers import check_workers_table
 
@@ -382,7 +406,7 @@ def parse_config(text: str, path: str | Path = "<string>", base_dir: str | Path 
 
 
 def _number(value: Any) -> bool:
-    return isinstance(value, _NUMBER) and not isinstance(value, bool) and math.isfinite(value)
+    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
 
 
 def _check_pair(cfg: CalibrationConfig, key: str, pair: Any, form: str, low: float | None = None,
@@ -399,7 +423,7 @@ def _check_pair(cfg: CalibrationConfig, key: str, pair: Any, form: str, low: flo
         raise cfg.error(key, f"values must be > 0; got {pair!r}.")
 
 
-def _check_values(cfg: CalibrationConfig) -> None:
+def _check_values(cfg: CalibrationConfig, raw: Mapping[str, Any]) -> None:
     """Values whose type alone says too little: pairs, weights, starts, seeds, formats."""
     d = cfg.data
     lk = d["likelihood"]
@@ -419,17 +443,6 @@ def _check_values(cfg: CalibrationConfig) -> None:
                 raise cfg.error(f"shape.start[{i}].{name}",
                                 f"must be a finite number (the coefficient in its unit); "
                                 f"got {value!r}.")
-    for section in ("search", "posterior"):
-        seed = d[section].get("seed")
-        if seed is not None and seed < 0:
-            raise cfg.error(f"{section}.seed", f"must be >= 0; got {seed!r}.")
-    for key in ("n_initial", "patience", "num_restarts", "raw_samples", "trust_region_warmup"):
-        value = d["search"][key]
-        if value is not None and value < (0 if key == "trust_region_warmup" else 1):
-            raise cfg.error(f"search.{key}", f"must be >= 1; got {value!r}.")
-    if d["search"]["stop_after_failures"] < 0:
-        raise cfg.error("search.stop_after_failures",
-                        "must be >= 0 (0: never stop for repeated failures).")
     figures = d["output"]["figures"]
     for i, fmt in enumerate(figures):
         if not isinstance(fmt, str) or fmt.lower().lstrip(".") not in FIGURE_FORMATS:
@@ -437,14 +450,10 @@ def _check_values(cfg: CalibrationConfig) -> None:
                             f"unknown figure format {fmt!r}{did_you_mean(str(fmt), FIGURE_FORMATS)}"
                             f"; use some of {list(FIGURE_FORMATS)}.")
     post = d["posterior"]
-    for key in ("n_walkers", "n_steps", "n_band_draws"):
-        if post[key] is not None and post[key] < 1:
-            raise cfg.error(f"posterior.{key}", f"must be >= 1; got {post[key]!r}.")
-    if post["burn_in"] is not None:
+    given = raw.get("posterior") or {}
+    if "burn_in" in given and "n_steps" in given:  # both from the file: say so here
         steps = post["n_steps"]
-        if post["burn_in"] < 0:
-            raise cfg.error("posterior.burn_in", f"must be >= 0; got {post['burn_in']!r}.")
-        if steps is not None and post["burn_in"] >= steps:
+        if post["burn_in"] >= steps:
             raise cfg.error("posterior.burn_in",
                             f"must be smaller than n_steps = {steps}; got {post['burn_in']}. "
                             "Lower burn_in or raise n_steps.")

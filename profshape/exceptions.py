@@ -1,7 +1,10 @@
 """Error and warning classes of profshape.
 
 Every error raised for bad input derives from :class:`InputDataError`, itself a
-:class:`ValueError`, so callers may catch either.
+:class:`ValueError`, so callers may catch either; its message names the key or field,
+the value received and the fix. Every warning derives from :class:`ProfshapeWarning`.
+All of profshape's public error and warning classes live here (private control-flow
+exceptions of one module stay in that module).
 """
 
 from __future__ import annotations
@@ -16,6 +19,8 @@ __all__ = [
     "ForwardModelError",
     "ImplausibleValueWarning",
     "InputDataError",
+    "ModelOutputError",
+    "PosteriorCheckWarning",
     "ProfshapeError",
     "ProfshapeWarning",
 ]
@@ -46,6 +51,15 @@ class ForwardModelError(ProfshapeError):
     """
 
 
+class ModelOutputError(ProfshapeError, ValueError):
+    """A forward model's output cannot be used (too large, not valid JSON, a file name
+    outside its work folder, a non-finite value fed to a fit).
+
+    Caught where a trial is run and recorded as that trial's failure reason; the
+    message names the file or quantity and what is wrong with it.
+    """
+
+
 class ProfshapeWarning(UserWarning):
     """Base class of profshape warnings."""
 
@@ -69,6 +83,12 @@ class ImplausibleValueWarning(ProfshapeWarning):
 
 class FolderLockedError(InputDataError):
     """Another process is writing to this output folder (the message names it)."""
+
+
+class PosteriorCheckWarning(ConvergenceWarning):
+    """The surrogate posterior disagrees with forward runs of its own draws."""
+
+
 class BoundWarning(ProfshapeWarning):
     """A best-fit coefficient sits on (within 1 % of) a bound of its search range.
 

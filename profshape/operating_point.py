@@ -5,8 +5,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from scipy import constants
-
+from . import constants
 from .exceptions import InputDataError
 from .propellants import Propellant, get_propellant
 
@@ -146,4 +145,4 @@ class OperatingPoint:
     @property
     def background_density_m3(self) -> float:
         """Background neutral density p / (k T) [m^-3] (ideal gas; 0 in space)."""
-        return self.background_pressure_Pa / (constants.k * self.background_temperature_K)
+        return self.background_pressure_Pa / (constants.k_B * self.background_temperature_K)

@@ -8,7 +8,9 @@ from dataclasses import dataclass, field
 from typing import Literal
 
 import numpy as np
-from scipy import constants
+
+from . import constants
+from .exceptions import InputDataError
 
 __all__ = ["AnomalousProfile", "ProfileKind", "electron_gyrofrequency"]
 
@@ -52,8 +54,8 @@ class AnomalousProfile:
 
     def __post_init__(self) -> None:
         if self.kind not in ("bohm", "frequency"):
-            raise ValueError(
-                f"kind must be 'bohm' or 'frequency'; got {self.kind!r}."
+            raise InputDataError(
+                f"AnomalousProfile.kind must be 'bohm' or 'frequency'; got {self.kind!r}."
             )
 
     def __call__(self, z_m: np.ndarray) -> np.ndarray:

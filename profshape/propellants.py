@@ -5,7 +5,7 @@ Sources
 - Standard atomic weights: IUPAC/CIAAW (Xe 131.293, Kr 83.798, Ar 39.95).
 - First ionization energies: NIST Atomic Spectra Database
   (Xe 12.1298 eV, Kr 13.9996 eV, Ar 15.7596 eV).
-- Atomic mass constant: CODATA 2018 via :mod:`scipy.constants`.
+- Atomic mass constant: CODATA 2018 via :mod:`profshape.constants` (from :mod:`scipy.constants`).
 
 The test-suite checks these against PlasmaPy's particle data.
 """
@@ -14,8 +14,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from scipy import constants
-
+from . import constants
 from .exceptions import InputDataError
 
 __all__ = ["PROPELLANTS", "Propellant", "get_propellant"]
@@ -45,7 +44,7 @@ class Propellant:
     @property
     def mass_kg(self) -> float:
         """Atomic mass [kg] (neutral atom)."""
-        return self.atomic_weight * constants.atomic_mass
+        return self.atomic_weight * constants.amu
 
     @property
     def ion_mass_kg(self) -> float:

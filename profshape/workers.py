@@ -31,7 +31,7 @@ from concurrent.futures import Executor
 from contextlib import ExitStack, contextmanager
 from typing import Any
 
-from .exceptions import ConfigError
+from .exceptions import ConfigError, InputDataError
 
 __all__ = [
     "CLUSTER_KINDS",
@@ -53,12 +53,12 @@ def walltime_seconds(text: str) -> int:
 
     Raises
     ------
-    ValueError
-        If the text is not of that form.
+    InputDataError
+        If the text is not of that form (a ValueError).
     """
     m = _WALLTIME.match(str(text).strip())
     if not m:
-        raise ValueError(f"walltime must look like 'HH:MM:SS' (or 'D-HH:MM:SS'); got {text!r}.")
+        raise InputDataError(f"walltime must look like 'HH:MM:SS' (or 'D-HH:MM:SS'); got {text!r}.")
     days, hours, minutes, seconds = (int(g) if g else 0 for g in m.groups())
     if m.group(4) is None:  # HH:MM
         return days * 86400 + hours * 3600 + minutes * 60

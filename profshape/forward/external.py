@@ -83,7 +83,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..exceptions import ForwardModelError, InputDataError
+from ..exceptions import ForwardModelError, InputDataError, ModelOutputError
 from ..operating_point import OperatingPoint
 from ..profile import AnomalousProfile
 from .base import STATUSES, ForwardModel, Prediction
@@ -182,10 +182,10 @@ class _CappedSink:
 
 def _inside(folder: Path, name: Any) -> Path:
     if not isinstance(name, str) or not name:
-        raise ValueError(f"output file name must be a non-empty string; got {name!r}")
+        raise ModelOutputError(f"output file name must be a non-empty string; got {name!r}")
     path = (folder / name).resolve()
     if not path.is_relative_to(folder.resolve()):
-        raise ValueError(f"output file {name!r} lies outside the work folder; refused")
+        raise ModelOutputError(f"output file {name!r} lies outside the work folder; refused")
     return path
 
 
@@ -430,20 +430,20 @@ class ExternalModel(ForwardModel):
         return self._read_outputs(folder, args, wall, tail), folder
 
     def _read_json(self, folder: Path) -> Any:
-        """The parsed ``output.json``; raises ValueError (with the cause) when unusable."""
+        """The parsed ``output.json``; raises ModelOutputError (with the cause) when unusable."""
         path = _inside(folder, OUTPUT_FILE)  # a symbolic link out of the folder is refused
         if not path.is_file():
             raise FileNotFoundError(OUTPUT_FILE)
         size = path.stat().st_size
         if size > self.max_output_json_bytes:
-            raise ValueError(f"{OUTPUT_FILE} has {size} bytes, over the limit of "
+            raise ModelOutputError(f"{OUTPUT_FILE} has {size} bytes, over the limit of "
                              f"{self.max_output_json_bytes}")
         with open(path, "rb") as fh:
             data = fh.read(self.max_output_json_bytes + 1)
         try:
             return json.loads(data.decode("utf-8"))
         except (UnicodeDecodeError, ValueError) as exc:
-            raise ValueError(f"{OUTPUT_FILE} is not valid JSON ({exc})") from None
+            raise ModelOutputError(f"{OUTPUT_FILE} is not valid JSON ({exc})") from None
 
     def _reason(self, spec: Mapping[str, Any], default: str = "") -> str:
         text = str(spec.get("reason", default))

@@ -10,18 +10,26 @@ Entry points:
 - :func:`compare_families` → ranking table by BIC (and an evidence estimate).
 
 See :mod:`profshape.posterior.sample` for how the surrogate's uncertainty is
-accounted for.
+accounted for. The names below are imported on first use (PEP 562), so that
+importing ``profshape.posterior.settings`` (as the calibration file's checks do)
+does not load torch.
 """
 
 from __future__ import annotations
 
-from .bands import PosteriorBands, posterior_bands, profile_band
-from .check import PosteriorCheck, PosteriorCheckWarning
-from .compare import compare_families
-from .predict import predict_scalars
-from .result import PosteriorResult
-from .sample import sample_posterior
-from .settings import PosteriorSettings
+from importlib import import_module
+from typing import TYPE_CHECKING, Any
+
+from ..exceptions import PosteriorCheckWarning
+
+if TYPE_CHECKING:
+    from .bands import PosteriorBands, posterior_bands, profile_band
+    from .check import PosteriorCheck
+    from .compare import compare_families
+    from .predict import predict_scalars
+    from .result import PosteriorResult
+    from .sample import sample_posterior
+    from .settings import PosteriorSettings
 
 __all__ = [
     "PosteriorBands",
@@ -35,3 +43,27 @@ __all__ = [
     "profile_band",
     "sample_posterior",
 ]
+
+_WHERE = {
+    "PosteriorBands": ".bands",
+    "posterior_bands": ".bands",
+    "profile_band": ".bands",
+    "PosteriorCheck": ".check",
+    "compare_families": ".compare",
+    "predict_scalars": ".predict",
+    "PosteriorResult": ".result",
+    "sample_posterior": ".sample",
+    "PosteriorSettings": ".settings",
+}
+
+
+def __getattr__(name: str) -> Any:
+    if name in _WHERE:
+        value = getattr(import_module(_WHERE[name], __name__), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
+def __dir__() -> list[str]:
+    return sorted(set(globals()) | set(__all__))

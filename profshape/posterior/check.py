@@ -34,7 +34,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from ..exceptions import ConvergenceWarning
+from ..exceptions import PosteriorCheckWarning
 
 __all__ = ["CHECK_ALPHA", "PosteriorCheck", "PosteriorCheckWarning", "judge_check"]
 
@@ -44,10 +44,6 @@ _Z_LIMIT = 3.0
 _P_BEYOND = float(2.0 * stats.norm.sf(_Z_LIMIT))
 #: Significance level of every statistical check (tail probabilities below it fail).
 CHECK_ALPHA = 1e-3
-
-
-class PosteriorCheckWarning(ConvergenceWarning):
-    """The surrogate posterior disagrees with forward runs of its own draws."""
 
 
 @dataclass

@@ -2,38 +2,66 @@
 
 from __future__ import annotations
 
-import math
 from dataclasses import asdict, dataclass, field
+from numbers import Integral, Real
 from typing import Any, Literal
 
 from ..exceptions import InputDataError
+from ..validation import Constraint, InstanceOf, Interval, Options, validate_dataclass
 
-__all__ = ["PosteriorSettings"]
+__all__ = ["CONSTRAINTS", "FIXES", "PosteriorSettings", "check_levels"]
 
 SamplingMethod = Literal["surrogate", "exact"]
 SurrogateOf = Literal["outputs", "log_likelihood"]
 
 
-def _int_at_least(name: str, value: Any, low: int, fix: str) -> int:
-    if isinstance(value, bool) or not isinstance(value, int | float) or int(value) != value:
-        raise InputDataError(f"PosteriorSettings.{name} must be an integer; got {value!r}.")
-    if int(value) < low:
-        raise InputDataError(
-            f"PosteriorSettings.{name} must be >= {low}; got {value!r}. {fix}"
-        )
-    return int(value)
+def _at_least(low: int) -> Interval:
+    return Interval(Integral, low, None, closed="left")
 
 
-def _positive_float(name: str, value: Any, fix: str = "") -> float:
-    try:
-        v = float(value)
-    except (TypeError, ValueError):
-        raise InputDataError(f"PosteriorSettings.{name} must be a number; got {value!r}.") from None
-    if not math.isfinite(v) or v <= 0:
-        raise InputDataError(
-            f"PosteriorSettings.{name} must be finite and > 0; got {value!r}. {fix}".rstrip()
-        )
-    return v
+#: Constraints of every field but ``band_levels`` (a sequence, :func:`check_levels`);
+#: see :mod:`profshape.validation`.
+CONSTRAINTS: dict[str, list[Constraint | None]] = {
+    "method": [Options(str, ("surrogate", "exact"))],
+    "surrogate_of": [Options(str, ("outputs", "log_likelihood"))],
+    "n_walkers": [_at_least(2)],
+    "n_steps": [_at_least(2)],
+    "burn_in": [_at_least(0)],
+    "thin": [_at_least(1)],
+    "n_gp_draws": [_at_least(0)],
+    "n_features": [_at_least(16)],
+    "n_refine_rounds": [_at_least(0)],
+    "refine_until_agreement": [InstanceOf(bool)],
+    "n_refine_draws": [_at_least(1)],
+    "n_check_draws": [_at_least(0)],
+    "check_tolerance_nats": [Interval(Real, 0, None, closed="neither")],
+    "check_max_disagree_fraction": [Interval(Real, 0, 1, closed="both")],
+    "check_max_failed_fraction": [Interval(Real, 0, 1, closed="both")],
+    "log_likelihood_floor_nats": [Interval(Real, 0, None, closed="neither")],
+    "max_gp_trials": [_at_least(4)],
+    "stop_on_autocorr": [InstanceOf(bool)],
+    "forward_budget": [_at_least(0)],
+    "refine_threshold_nats": [Interval(Real, 0, None, closed="neither")],
+    "n_ensembles": [_at_least(1)],
+    "seed": [_at_least(0), None],
+}
+FIXES = {
+    "n_walkers": "Use an even number such as 32.",
+    "n_steps": "Use a few thousand steps.",
+    "burn_in": "Use 0 for no burn-in.",
+    "thin": "Use 1 to keep all.",
+    "n_gp_draws": "Use 0 to sample on the GP mean only.",
+    "n_features": "Use about 1024.",
+    "n_refine_rounds": "Use 0 for no refinement.",
+    "n_refine_draws": "Use about 16.",
+    "n_check_draws": "Use 0 to skip the check.",
+    "max_gp_trials": "Use a few hundred.",
+    "forward_budget": "Use about 32 (0: no forward run; no check).",
+    "n_ensembles": "Use about 4.",
+    "refine_threshold_nats": "Use about 1.",
+    "log_likelihood_floor_nats": "Use about 150.",
+    "seed": "Use a non-negative integer or None.",
+}
 
 
 def check_levels(levels: Any, field_name: str = "band_levels") -> tuple[float, ...]:
@@ -174,82 +202,20 @@ class PosteriorSettings:
     seed: int | None = 0
 
     def __post_init__(self) -> None:
-        if self.method not in ("surrogate", "exact"):
-            raise InputDataError(
-                f"PosteriorSettings.method must be 'surrogate' or 'exact'; got {self.method!r}."
-            )
-        if self.surrogate_of not in ("outputs", "log_likelihood"):
-            raise InputDataError(
-                "PosteriorSettings.surrogate_of must be 'outputs' or 'log_likelihood'; got "
-                f"{self.surrogate_of!r}."
-            )
-        nw = _int_at_least("n_walkers", self.n_walkers, 2, "Use an even number such as 32.")
+        validate_dataclass(self, CONSTRAINTS, fixes=FIXES)
+        nw = self.n_walkers
         if nw % 2:
             raise InputDataError(
                 f"PosteriorSettings.n_walkers must be even (the ensemble is split in halves); "
                 f"got {nw}. Use {nw + 1}."
             )
-        object.__setattr__(self, "n_walkers", nw)
-        if not isinstance(self.refine_until_agreement, bool):
+        if self.burn_in >= self.n_steps:
             raise InputDataError(
-                "PosteriorSettings.refine_until_agreement must be True or False; got "
-                f"{self.refine_until_agreement!r}."
+                f"PosteriorSettings.burn_in must be smaller than n_steps = {self.n_steps}; got "
+                f"{self.burn_in}. Lower burn_in or raise n_steps."
             )
-        n_steps = _int_at_least("n_steps", self.n_steps, 2, "Use a few thousand steps.")
-        object.__setattr__(self, "n_steps", n_steps)
-        burn = _int_at_least("burn_in", self.burn_in, 0, "Use 0 for no burn-in.")
-        if burn >= n_steps:
-            raise InputDataError(
-                f"PosteriorSettings.burn_in must be smaller than n_steps = {n_steps}; got {burn}. "
-                "Lower burn_in or raise n_steps."
-            )
-        object.__setattr__(self, "burn_in", burn)
-        object.__setattr__(self, "thin", _int_at_least("thin", self.thin, 1, "Use 1 to keep all."))
-        for name, low, fix in (
-            ("n_gp_draws", 0, "Use 0 to sample on the GP mean only."),
-            ("n_features", 16, "Use about 1024."),
-            ("n_refine_rounds", 0, "Use 0 for no refinement."),
-            ("n_refine_draws", 1, "Use about 16."),
-            ("n_check_draws", 0, "Use 0 to skip the check."),
-            ("max_gp_trials", 4, "Use a few hundred."),
-            ("forward_budget", 0, "Use about 32 (0: no forward run; no check)."),
-            ("n_ensembles", 1, "Use about 4."),
-        ):
-            object.__setattr__(self, name, _int_at_least(name, getattr(self, name), low, fix))
-        object.__setattr__(
-            self, "check_tolerance_nats",
-            _positive_float("check_tolerance_nats", self.check_tolerance_nats),
-        )
-        if not isinstance(self.stop_on_autocorr, bool):
-            raise InputDataError(
-                "PosteriorSettings.stop_on_autocorr must be True or False; got "
-                f"{self.stop_on_autocorr!r}."
-            )
-        object.__setattr__(
-            self, "refine_threshold_nats",
-            _positive_float("refine_threshold_nats", self.refine_threshold_nats, "Use about 1."),
-        )
-        object.__setattr__(
-            self, "log_likelihood_floor_nats",
-            _positive_float("log_likelihood_floor_nats", self.log_likelihood_floor_nats,
-                            "Use about 150."),
-        )
-        for name in ("check_max_disagree_fraction", "check_max_failed_fraction"):
-            v = getattr(self, name)
-            try:
-                fv = float(v)
-            except (TypeError, ValueError):
-                raise InputDataError(f"PosteriorSettings.{name} must be a number; got {v!r}.") from None
-            if not 0.0 <= fv <= 1.0:
-                raise InputDataError(
-                    f"PosteriorSettings.{name} must lie in [0, 1]; got {v!r}."
-                )
-            object.__setattr__(self, name, fv)
         object.__setattr__(self, "band_levels", check_levels(self.band_levels,
                                                              "PosteriorSettings.band_levels"))
-        if self.seed is not None:
-            object.__setattr__(self, "seed", _int_at_least("seed", self.seed, 0,
-                                                           "Use a non-negative integer or None."))
 
     @property
     def n_kept_steps(self) -> int:

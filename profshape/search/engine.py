@@ -17,7 +17,7 @@ from typing import Any
 import numpy as np
 import torch
 
-from ..exceptions import InputDataError
+from ..exceptions import ConfigError, InputDataError
 from ..output_layout import OutputLayout
 from .acquisition import make_acquisition, optimize_acquisition
 from .bounds import BoundHit, bound_hits
@@ -171,7 +171,7 @@ class Search:
 
     def __init__(self, space: Any, settings: SearchSettings):
         if not isinstance(settings, SearchSettings):
-            raise InputDataError(
+            raise ConfigError(
                 f"settings must be a SearchSettings; got {type(settings).__name__}."
             )
         self.space = space

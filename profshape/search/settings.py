@@ -2,34 +2,49 @@
 
 from __future__ import annotations
 
-import math
 from dataclasses import asdict, dataclass
+from numbers import Integral, Real
 from typing import Any, Literal
 
 import numpy as np
 
 from ..exceptions import ConfigError
+from ..validation import Constraint, InstanceOf, Interval, Options, validate_dataclass
 
-__all__ = ["SearchSettings"]
+__all__ = ["CONSTRAINTS", "FIXES", "SearchSettings"]
 
 ObjectiveTransform = Literal["log", "identity"]
 Strategy = Literal["composite", "global", "trust_region", "hybrid"]
 STRATEGIES = ("composite", "global", "trust_region", "hybrid")
 
 
-def _int_field(name: str, value: Any, minimum: int, *, allow_none: bool = False) -> None:
-    if value is None and allow_none:
-        return
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)):
-        raise ConfigError(
-            f"SearchSettings.{name} must be an integer >= {minimum}"
-            f"{' or None' if allow_none else ''}; got {value!r}."
-        )
-    if value < minimum:
-        raise ConfigError(
-            f"SearchSettings.{name} must be >= {minimum}; got {value!r}. "
-            f"Give {name}={minimum} or more."
-        )
+def _at_least(low: int) -> Interval:
+    return Interval(Integral, low, None, closed="left")
+
+
+#: Constraints of every checked field (see :mod:`profshape.validation`).
+CONSTRAINTS: dict[str, list[Constraint | None]] = {
+    "budget": [_at_least(1)],
+    "batch_size": [_at_least(1)],
+    "n_initial": [_at_least(1), None],
+    "patience": [_at_least(1), None],
+    "seed": [_at_least(0)],
+    "num_restarts": [_at_least(1)],
+    "raw_samples": [_at_least(1)],
+    "mc_samples": [_at_least(1)],
+    "n_workers": [_at_least(1), None],
+    "max_fit_attempts": [_at_least(1)],
+    "torch_threads": [_at_least(1), None],
+    "trust_region_warmup": [_at_least(0), None],
+    "target_reduced_chi2": [Interval(Real, 0, None, closed="neither"), None],
+    "objective_transform": [Options(str, ("log", "identity"))],
+    "strategy": [Options(str, STRATEGIES)],
+    "progress": [InstanceOf(bool)],
+    "asynchronous": [InstanceOf(bool)],
+}
+FIXES = {name: f"Give {name}={c[0].left:g} or more." for name, c in CONSTRAINTS.items()
+          if isinstance(c[0], Interval) and c[0].kind is Integral and c[0].left is not None}
+FIXES["target_reduced_chi2"] = "(the noise floor is 1)"
 
 
 @dataclass(frozen=True)
@@ -147,49 +162,12 @@ class SearchSettings:
     trust_region_warmup: int | None = None
 
     def __post_init__(self) -> None:
-        _int_field("budget", self.budget, 1)
-        _int_field("batch_size", self.batch_size, 1)
-        _int_field("n_initial", self.n_initial, 1, allow_none=True)
-        _int_field("patience", self.patience, 1, allow_none=True)
-        _int_field("seed", self.seed, 0)
-        _int_field("num_restarts", self.num_restarts, 1)
-        _int_field("raw_samples", self.raw_samples, 1)
-        _int_field("mc_samples", self.mc_samples, 1)
-        _int_field("n_workers", self.n_workers, 1, allow_none=True)
-        _int_field("max_fit_attempts", self.max_fit_attempts, 1)
-        _int_field("torch_threads", self.torch_threads, 1, allow_none=True)
-        _int_field("trust_region_warmup", self.trust_region_warmup, 0, allow_none=True)
+        validate_dataclass(self, CONSTRAINTS, fixes=FIXES, error=ConfigError)
         if self.raw_samples < self.num_restarts:
             raise ConfigError(
                 f"SearchSettings.raw_samples ({self.raw_samples}) must be >= num_restarts "
                 f"({self.num_restarts}); raise raw_samples or lower num_restarts."
             )
-        if self.target_reduced_chi2 is not None:
-            t = self.target_reduced_chi2
-            if isinstance(t, bool) or not isinstance(t, (int, float, np.floating)):
-                raise ConfigError(
-                    f"SearchSettings.target_reduced_chi2 must be a number > 0 or None; got {t!r}."
-                )
-            if not math.isfinite(float(t)) or float(t) <= 0.0:
-                raise ConfigError(
-                    f"SearchSettings.target_reduced_chi2 must be finite and > 0; got {t!r} "
-                    "(the noise floor is 1)."
-                )
-        if self.objective_transform not in ("log", "identity"):
-            raise ConfigError(
-                "SearchSettings.objective_transform must be 'log' or 'identity'; "
-                f"got {self.objective_transform!r}."
-            )
-        if self.strategy not in STRATEGIES:
-            raise ConfigError(
-                f"SearchSettings.strategy must be one of {list(STRATEGIES)}; "
-                f"got {self.strategy!r}."
-            )
-        for name in ("progress", "asynchronous"):
-            if not isinstance(getattr(self, name), bool):
-                raise ConfigError(
-                    f"SearchSettings.{name} must be True or False; got {getattr(self, name)!r}."
-                )
         if self.initial_points is not None:
             if isinstance(self.initial_points, (str, bytes, dict)) or not hasattr(
                 self.initial_points, "__len__"

@@ -46,7 +46,7 @@ from gpytorch.kernels import MaternKernel, ScaleKernel
 from gpytorch.likelihoods import GaussianLikelihood
 from gpytorch.mlls import ExactMarginalLogLikelihood
 
-from ..exceptions import ConvergenceWarning
+from ..exceptions import ConvergenceWarning, InputDataError
 
 __all__ = [
     "FEASIBILITY_THRESHOLD",
@@ -188,7 +188,8 @@ def fit_objective_model(
     x = _as_tensor(train_u)
     y = _as_tensor(train_y).reshape(-1, 1)
     if not torch.all(torch.isfinite(y)):
-        raise ValueError("fit_objective_model: train_y must be finite (never feed NaN to the GP).")
+        raise InputDataError("fit_objective_model: train_y must be finite (never feed NaN to the GP); "
+                             "drop the failed trials first.")
     d = x.shape[-1]
     model = SingleTaskGP(
         x,

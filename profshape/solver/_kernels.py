@@ -38,13 +38,16 @@ import math
 import numpy as np
 from numba import njit
 
+from .. import constants
+
 __all__: list[str] = []
 
 # fast-math without "nnan"/"ninf", so that the finiteness checks keep working
 _FM = {"nsz", "arcp", "contract", "afn", "reassoc"}
 
-_E = 1.602176634e-19  # elementary charge [C] (CODATA 2018, exact)
-_ME = 9.1093837015e-31  # electron mass [kg] (CODATA 2018)
+# module-level floats, read by numba as compile-time constants
+_E = constants.e  # elementary charge [C]
+_ME = constants.m_e  # electron mass [kg]
 _PI = math.pi
 
 # Status codes returned by march().

@@ -12,8 +12,8 @@ PlasmaPy.
 from __future__ import annotations
 
 import numpy as np
-from scipy import constants
 
+from .. import constants
 from ..profile import electron_gyrofrequency
 
 __all__ = [

@@ -28,8 +28,8 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import constants
 
+from .. import constants
 from ..exceptions import InputDataError
 from ..propellants import Propellant, get_propellant
 

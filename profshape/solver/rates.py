@@ -41,8 +41,8 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
-from scipy import constants
 
+from .. import constants
 from ..exceptions import InputDataError
 from ..propellants import Propellant, get_propellant
 

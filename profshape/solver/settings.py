@@ -2,44 +2,55 @@
 
 from __future__ import annotations
 
-import math
 from dataclasses import asdict, dataclass
+from numbers import Integral, Real
 
 from ..exceptions import InputDataError
+from ..validation import Constraint, Interval, Options, validate_dataclass
 
-__all__ = ["SolverSettings"]
+__all__ = ["CONSTRAINTS", "SolverSettings"]
 
-_INT_RANGES = {
-    "n_cells": (20, 4000),
-    "n_average_windows": (1, 20),
-    "ion_scheme_order": (1, 2),
-    "warmup_coarsening": (1, 8),
-    "time_order": (1, 2),
-    "min_oscillation_periods": (2, 50),
-}
-_FLOAT_RANGES = {
-    "cfl": (0.05, 0.95),
-    "window_s": (1e-6, 1e-2),
-    "min_time_s": (0.0, 0.1),
-    "warmup_time_s": (0.0, 0.1),
-    "max_time_s": (1e-6, 1.0),
-    "tolerance": (1e-5, 0.5),
-    "mass_tolerance": (1e-5, 0.5),
-    "max_time_step_s": (1e-12, 1e-5),
-    "sample_interval_s": (1e-10, 1e-5),
-    "density_floor_m3": (1.0, 1e16),
-    "electron_temperature_floor_eV": (0.01, 5.0),
-    "electron_temperature_ceiling_eV": (10.0, 400.0),
-    "wall_secondary_yield": (0.0, 0.98),
-    "wall_loss_scale": (0.0, 10.0),
-    "max_floor_fraction": (0.0, 1.0),
-    "wall_transition_gaps": (0.02, 5.0),
-    "ion_neutral_collision_scale": (0.0, 10.0),
-    "quiescent_window_fraction": (0.05, 1.0),
-    "energy_bound_tolerance": (0.0, 0.2),
-}
 #: Wall materials with a secondary-electron yield fit (see profshape.solver.walls).
 _WALL_MATERIALS = ("boron_nitride", "alumina", "borosil", "constant")
+
+
+def _ints(lo: int, hi: int) -> list[Constraint | None]:
+    return [Interval(Integral, lo, hi, closed="both")]
+
+
+def _reals(lo: float, hi: float) -> list[Constraint | None]:
+    return [Interval(Real, lo, hi, closed="both")]
+
+
+#: Constraints of every field (see :mod:`profshape.validation`).
+CONSTRAINTS: dict[str, list[Constraint | None]] = {
+    "wall_material": [Options(str, _WALL_MATERIALS, normalise=lambda v: v.strip().lower())],
+    "n_cells": _ints(20, 4000),
+    "n_average_windows": _ints(1, 20),
+    "ion_scheme_order": _ints(1, 2),
+    "warmup_coarsening": _ints(1, 8),
+    "time_order": _ints(1, 2),
+    "min_oscillation_periods": _ints(2, 50),
+    "cfl": _reals(0.05, 0.95),
+    "window_s": _reals(1e-6, 1e-2),
+    "min_time_s": _reals(0.0, 0.1),
+    "warmup_time_s": _reals(0.0, 0.1),
+    "max_time_s": _reals(1e-6, 1.0),
+    "tolerance": _reals(1e-5, 0.5),
+    "mass_tolerance": _reals(1e-5, 0.5),
+    "max_time_step_s": _reals(1e-12, 1e-5),
+    "sample_interval_s": _reals(1e-10, 1e-5),
+    "density_floor_m3": _reals(1.0, 1e16),
+    "electron_temperature_floor_eV": _reals(0.01, 5.0),
+    "electron_temperature_ceiling_eV": _reals(10.0, 400.0),
+    "wall_secondary_yield": _reals(0.0, 0.98),
+    "wall_loss_scale": _reals(0.0, 10.0),
+    "max_floor_fraction": _reals(0.0, 1.0),
+    "wall_transition_gaps": _reals(0.02, 5.0),
+    "ion_neutral_collision_scale": _reals(0.0, 10.0),
+    "quiescent_window_fraction": _reals(0.05, 1.0),
+    "energy_bound_tolerance": _reals(0.0, 0.2),
+}
 
 
 @dataclass(frozen=True)
@@ -156,29 +167,7 @@ class SolverSettings:
     energy_bound_tolerance: float = 0.02
 
     def __post_init__(self) -> None:
-        material = self.wall_material
-        if not isinstance(material, str) or material.strip().lower() not in _WALL_MATERIALS:
-            raise InputDataError(
-                f"solver.wall_material must be one of {', '.join(_WALL_MATERIALS)}; "
-                f"got {material!r}."
-            )
-        object.__setattr__(self, "wall_material", material.strip().lower())
-        for key, (lo, hi) in _INT_RANGES.items():
-            value = getattr(self, key)
-            if isinstance(value, bool) or not isinstance(value, int | float) or value != int(value):
-                raise InputDataError(f"solver.{key} must be an integer; got {value!r}.")
-            if not lo <= int(value) <= hi:
-                raise InputDataError(f"solver.{key} must lie in [{lo}, {hi}]; got {value!r}.")
-            object.__setattr__(self, key, int(value))
-        for key, (lo, hi) in _FLOAT_RANGES.items():
-            value = getattr(self, key)
-            try:
-                v = float(value)
-            except (TypeError, ValueError):
-                raise InputDataError(f"solver.{key} must be a number; got {value!r}.") from None
-            if isinstance(value, bool) or not math.isfinite(v) or not lo <= v <= hi:
-                raise InputDataError(f"solver.{key} must lie in [{lo:g}, {hi:g}]; got {value!r}.")
-            object.__setattr__(self, key, v)
+        validate_dataclass(self, CONSTRAINTS, owner="solver")
         if self.max_time_s < self.min_time_s + self.n_average_windows * self.window_s:
             raise InputDataError(
                 f"solver.max_time_s = {self.max_time_s!r} s is shorter than min_time_s + "

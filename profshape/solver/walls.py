@@ -26,8 +26,8 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy import constants
 
+from .. import constants
 from ..exceptions import InputDataError
 
 __all__ = [

@@ -16,7 +16,7 @@ import pytest
 from scipy import constants
 
 from profshape.cli import main
-from profshape.config import _SCHEMA, parse_config
+from profshape.config import SCHEMA, parse_config
 
 ROOT = Path(__file__).resolve().parents[2]
 EXAMPLE_CODE = ROOT / "tests" / "forward" / "example_code.py"
@@ -117,9 +117,10 @@ def test_calibrate_prints_the_real_output_folder(case):
 
 
 def test_readme_names_the_demo_folder_it_writes():
-    from profshape import cli
+    from profshape.cli import calibration
 
-    prefix = re.search(r'new_folder_name\("([\w-]+)"\)', Path(cli.__file__).read_text()).group(1)
+    prefix = re.search(r'new_folder_name\("([\w-]+)"\)',
+                       Path(calibration.__file__).read_text()).group(1)
     assert prefix == "profshape-demo"
     demo_sentence = README[README.index("## Set-up"):README.index("<!-- setup:demo -->")]
     assert f"`{prefix}-*`" in demo_sentence and "profshape-run-*" not in demo_sentence
@@ -143,7 +144,7 @@ def test_init_writes_a_template_with_every_key(tmp_path, model, capsys):
     text = target.read_text()
     cfg = parse_config(text, path=target)
     assert cfg.data["forward_model"]["kind"] == model
-    for table, spec in _SCHEMA.items():
+    for table, spec in SCHEMA.items():
         assert re.search(rf"(?m)^#?\s*\[{table}\]|^#?\s*\[\[{table}\]\]|^#?\s*{table} =", text), table
         if isinstance(spec, dict) and "*" not in spec:
             for key in spec:
@@ -155,7 +156,7 @@ def test_init_writes_a_template_with_every_key(tmp_path, model, capsys):
 
 def test_readme_documents_every_key():
     ref = README[README.index("## Calibration file reference"):README.index("## Wrapping an in-house code")]
-    for table, spec in _SCHEMA.items():
+    for table, spec in SCHEMA.items():
         assert table in ref, table
         if isinstance(spec, dict) and "*" not in spec:
             for key in spec:

@@ -1,4 +1,4 @@
-"""The ``profshape solve`` command (argparse wiring, files, exit codes)."""
+"""The ``profshape solve`` command (argparse wiring, files, exit codes) in ``profshape.cli.solve``."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ import json
 import pandas as pd
 import pytest
 
-from profshape.solver.command import add_parser
+from profshape.cli.solve import add_parser
 
 
 def _run(argv):

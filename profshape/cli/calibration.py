@@ -1,68 +1,18 @@
-"""The ``profshape`` command line.
-
-Exit codes: 0 success, 2 bad input (the message says what and where; also an
-output folder that another process is writing), 1 a failure of the run itself
-(including a calibration in which no trial succeeded, or whose posterior could
-not be computed: the summary and report are written first), 130 interrupted
-(Ctrl-C) and 143 terminated (SIGTERM); after either, the trial log keeps what
-was done and ``profshape resume DIR`` continues.
-"""
+"""The calibration commands: ``demo``, ``calibrate``, ``resume``, ``report``, ``init``,
+``export`` and ``compare``."""
 
 from __future__ import annotations
 
 import argparse
-import contextlib
 import re
-import signal
-import sys
-import warnings
-from collections.abc import Iterator, Sequence
 from pathlib import Path
+from typing import Any
 
-from ._version import __version__
-from .demo import demo_data_folder
-from .exceptions import CampaignFailedError, InputDataError, ProfshapeWarning
+from ..demo import demo_data_folder
+from ..exceptions import InputDataError
+from ._common import EXIT_OK, print_summary
 
-__all__ = ["main"]
-
-EXIT_OK, EXIT_FAILURE, EXIT_BAD_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
-EXIT_TERMINATED = 128 + signal.SIGTERM
-
-
-class _Terminated(KeyboardInterrupt):
-    """SIGTERM, handled like Ctrl-C (the run unwinds, pools close, the log is kept)."""
-
-
-def _on_sigterm(signum: int, frame: object) -> None:
-    raise _Terminated()
-
-
-@contextlib.contextmanager
-def _signals_and_warnings() -> Iterator[None]:
-    """SIGTERM stops like Ctrl-C; profshape warnings print as one ``profshape: warning:`` line."""
-    previous = None
-    with contextlib.suppress(ValueError):  # not in the main thread: leave SIGTERM alone
-        previous = signal.signal(signal.SIGTERM, _on_sigterm)
-    shown = warnings.showwarning
-
-    def show(message, category, filename, lineno, file=None, line=None):
-        if issubclass(category, ProfshapeWarning):
-            print(f"profshape: warning: {message}", file=sys.stderr)
-        else:
-            shown(message, category, filename, lineno, file, line)
-
-    warnings.showwarning = show
-    try:
-        yield
-    finally:
-        warnings.showwarning = shown
-        if previous is not None:
-            signal.signal(signal.SIGTERM, previous)
-
-
-def _err(message: str) -> None:
-    one_line = " ".join(str(message).splitlines())  # a library's multi-line text on one line
-    print(f"profshape: error: {one_line}", file=sys.stderr)
+__all__ = ["add_parsers", "demo_config_text"]
 
 
 def demo_config_text(budget: int | None = None, seed: int | None = None,
@@ -79,8 +29,8 @@ def demo_config_text(budget: int | None = None, seed: int | None = None,
 
 
 def _cmd_demo(args: argparse.Namespace) -> int:
-    from .config import parse_config
-    from .workflow import new_folder_name, run_calibration
+    from ..config import parse_config
+    from ..workflow import new_folder_name, run_calibration
 
     for name in ("budget", "workers"):
         v = getattr(args, name)
@@ -90,37 +40,37 @@ def _cmd_demo(args: argparse.Namespace) -> int:
     cfg = parse_config(text, path=folder / "demo.toml", base_dir=folder)
     out = Path(args.out) if args.out else new_folder_name("profshape-demo")
     summary = run_calibration(cfg, out, progress=not args.quiet)
-    _print_summary(summary, out)
+    print_summary(summary, out)
     return EXIT_OK
 
 
 def _cmd_calibrate(args: argparse.Namespace) -> int:
-    from .workflow import calibrate
+    from ..workflow import calibrate
 
     out = args.out
     summary = calibrate(args.file, out, progress=not args.quiet)
-    _print_summary(summary, Path(summary.get("output_folder", out or ".")))
+    print_summary(summary, Path(summary.get("output_folder", out or ".")))
     return EXIT_OK
 
 
 def _cmd_resume(args: argparse.Namespace) -> int:
-    from .workflow import resume
+    from ..workflow import resume
 
     summary = resume(args.folder, progress=not args.quiet, budget=args.budget)
-    _print_summary(summary, Path(args.folder))
+    print_summary(summary, Path(args.folder))
     return EXIT_OK
 
 
 def _cmd_report(args: argparse.Namespace) -> int:
-    from .workflow import rebuild_report
+    from ..workflow import rebuild_report
 
     summary = rebuild_report(args.folder)
-    _print_summary(summary, Path(args.folder))
+    print_summary(summary, Path(args.folder))
     return EXIT_OK
 
 
 def _cmd_init(args: argparse.Namespace) -> int:
-    from .template import write_template
+    from ..template import write_template
 
     path = write_template(args.file, "external" if args.external else "builtin", force=args.force)
     print(f"wrote {path}: fill in the data files and the {'command' if args.external else 'device'}, "
@@ -129,7 +79,7 @@ def _cmd_init(args: argparse.Namespace) -> int:
 
 
 def _cmd_export(args: argparse.Namespace) -> int:
-    from .workflow import export_closure
+    from ..workflow import export_closure
 
     formats = args.formats.split(",") if args.formats else ("csv", "json", "nc")
     for fmt, path in export_closure(args.folder, args.out, formats).items():
@@ -138,7 +88,7 @@ def _cmd_export(args: argparse.Namespace) -> int:
 
 
 def _cmd_compare(args: argparse.Namespace) -> int:
-    from .workflow import compare_runs
+    from ..workflow import compare_runs
 
     result = compare_runs(args.folders, args.out, criterion=args.criterion)
     print(result["text"], end="")
@@ -146,34 +96,8 @@ def _cmd_compare(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-def _print_summary(summary: dict, out: Path) -> None:
-    best = summary.get("best_reduced_chi2")
-    print(f"output folder: {out}")
-    print(f"trials: {summary.get('n_trials')} ({summary.get('n_failed')} failed); "
-          f"stop reason: {summary.get('stop_reason')}")
-    if summary.get("stop_detail"):
-        print(f"  the repeated failure: {summary['stop_detail'][-1500:]}")
-    if best is not None:
-        print(f"best reduced chi-square: {best:.4g}")
-    for name, value in (summary.get("best_coefficients") or {}).items():
-        print(f"  {name} = {value:.6g}")
-    from .posterior.verdicts import terminal_lines
-
-    for line in terminal_lines(summary.get("checks") or []):
-        print(line)
-    if summary.get("report"):
-        print(f"report: {out / summary['report']}")
-
-
-def _parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
-        prog="profshape",
-        description="Calibrate the anomalous electron-transport profile of a Hall-effect-thruster "
-                    "discharge model against measured ion velocities by Bayesian optimisation.",
-    )
-    parser.add_argument("--version", action="version", version=f"profshape {__version__}")
-    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
-
+def add_parsers(sub: Any) -> None:
+    """Add the calibration commands to an argparse ``subparsers`` object."""
     demo = sub.add_parser("demo", help="run the whole job on the bundled (synthetic) demo data",
                           description="Search, posterior, bands, predictions, figures and a report "
                                       "on the bundled demo with the built-in solver.")
@@ -233,44 +157,3 @@ def _parser() -> argparse.ArgumentParser:
     cmp_.add_argument("--criterion", default="bic", choices=("bic", "aic", "laplace"),
                       help="what the ranking sorts on (default bic)")
     cmp_.set_defaults(func=_cmd_compare)
-
-    try:
-        from .solver.command import add_parser as add_solve_parser
-    except ImportError:  # pragma: no cover - solver always ships
-        pass
-    else:
-        add_solve_parser(sub)
-    return parser
-
-
-def main(argv: Sequence[str] | None = None) -> int:
-    """Entry point of the ``profshape`` console script; returns the exit code."""
-    parser = _parser()
-    args = parser.parse_args(argv)
-    if not getattr(args, "command", None):
-        parser.print_help()
-        return EXIT_BAD_INPUT
-    try:
-        with _signals_and_warnings():
-            return int(args.func(args))
-    except KeyboardInterrupt as exc:
-        folder = getattr(args, "out", None) or getattr(args, "folder", None)
-        hint = f" `profshape resume {folder}`" if folder else " `profshape resume <output folder>`"
-        what = "terminated (SIGTERM)" if isinstance(exc, _Terminated) else "interrupted"
-        _err(f"{what}; the trial log keeps every finished trial. Continue with" + hint + ".")
-        return EXIT_TERMINATED if isinstance(exc, _Terminated) else EXIT_INTERRUPTED
-    except CampaignFailedError as exc:
-        _err(str(exc))
-        return EXIT_FAILURE
-    except InputDataError as exc:
-        _err(str(exc))
-        return EXIT_BAD_INPUT
-    except Exception as exc:  # a failure of the run: say what, not a traceback
-        _err(f"the run failed: {type(exc).__name__}: {exc}")
-        if "PROFSHAPE_DEBUG" in __import__("os").environ:
-            raise
-        return EXIT_FAILURE
-
-
-if __name__ == "__main__":  # pragma: no cover
-    sys.exit(main())

@@ -7,19 +7,15 @@ import json
 import sys
 import tomllib
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from ..exceptions import ConfigError, InputDataError
-from .config import (
-    default_profile,
-    device_from_mapping,
-    point_from_mapping,
-    profile_from_mapping,
-    settings_from_mapping,
-)
-from .device import demo_device, demo_operating_points
-from .model import solve
-from .settings import SolverSettings
+
+if TYPE_CHECKING:
+    from ..operating_point import OperatingPoint
+    from ..profile import AnomalousProfile
+    from ..solver.device import Device
+    from ..solver.settings import SolverSettings
 
 __all__ = ["add_parser", "load_case", "run_solve"]
 
@@ -52,8 +48,19 @@ def add_parser(subparsers: Any) -> argparse.ArgumentParser:
     return p
 
 
-def load_case(path: Path | None):
+def load_case(path: Path | None
+              ) -> tuple[Device, OperatingPoint, AnomalousProfile, SolverSettings]:
     """(device, point, profile, settings) from a TOML case file (or the demo case)."""
+    from ..solver.config import (
+        default_profile,
+        device_from_mapping,
+        point_from_mapping,
+        profile_from_mapping,
+        settings_from_mapping,
+    )
+    from ..solver.device import demo_device, demo_operating_points
+    from ..solver.settings import SolverSettings
+
     if path is None:
         device = demo_device()
         return device, demo_operating_points()[0], default_profile(device), SolverSettings()
@@ -82,6 +89,9 @@ def load_case(path: Path | None):
 
 def run_solve(args: argparse.Namespace) -> int:
     """Run ``profshape solve``; returns the exit code."""
+    from ..solver.config import settings_from_mapping
+    from ..solver.model import solve
+
     try:
         device, point, profile, settings = load_case(args.case)
         if args.n_cells is not None:
