@@ -105,7 +105,7 @@ def user_points_to_unit(
         bad = np.flatnonzero((u < -1e-9) | (u > 1 + 1e-9))
         if bad.size:
             raise InputDataError(
-                f"initial_points[{i}]: {[names[j] for j in bad]} outside the search bounds "
+                f"initial_points[{i}]: {[names[int(j)] for j in bad]} outside the search bounds "
                 f"(unit-cube values {u[bad].round(4).tolist()}); move the point inside the "
                 "bounds or widen them."
             )
