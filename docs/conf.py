@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import os
 import sys
+import warnings
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -69,6 +70,9 @@ autodoc_mock_imports: list[str] = []  # nothing mocked: a failed import is an er
 autosummary_ignore_module_all = False
 
 # -- numpydoc ----------------------------------------------------------------
+# numpydoc reports a section it does not know as a Python warning, which -W does
+# not catch; make it an error too.
+warnings.filterwarnings("error", message="Unknown section", category=UserWarning)
 numpydoc_show_class_members = False  # autodoc lists the members
 numpydoc_class_members_toctree = False
 numpydoc_xref_param_type = False
