@@ -47,12 +47,14 @@ def sobol_points(n: int, dim: int, seed: int, start: int = 0) -> np.ndarray:
     engine = qmc.Sobol(d=dim, scramble=True, seed=np.random.default_rng(seed))
     if start:
         engine.fast_forward(start)
-    return engine.random(n)
+    points: np.ndarray = engine.random(n)
+    return points
 
 
 def sobol_point(index: int, dim: int, seed: int) -> np.ndarray:
     """Point ``index`` of the scrambled Sobol sequence of :func:`sobol_points`."""
-    return sobol_points(1, dim, seed, start=index)[0]
+    point: np.ndarray = sobol_points(1, dim, seed, start=index)[0]
+    return point
 
 
 def user_points_to_unit(
