@@ -145,4 +145,4 @@ class OperatingPoint:
     @property
     def background_density_m3(self) -> float:
         """Background neutral density p / (k T) [m^-3] (ideal gas; 0 in space)."""
-        return self.background_pressure_Pa / (constants.k_B * self.background_temperature_K)
+        return float(self.background_pressure_Pa / (constants.k_B * self.background_temperature_K))

@@ -103,9 +103,9 @@ class OutputLayout:
             lab = data.label
             meas = data.ion_velocity
             if meas is not None:
-                use_z = s.use_position_uncertainty and meas.sigma_z_m is not None
+                sigma_z_m = meas.sigma_z_m if s.use_position_uncertainty else None
                 for i, z in enumerate(meas.z_m):
-                    if use_z:
+                    if sigma_z_m is not None:
                         slopes.append(OutputColumn(lab, "ion_velocity", SLOPE, float(z)))
                         slope_of.append(len(values))
                     values.append(OutputColumn(lab, "ion_velocity", VALUE, float(z)))
@@ -113,7 +113,7 @@ class OutputLayout:
                     sig.append(float(meas.sigma_m_s[i]))
                     wts.append(s.weight(lab, "ion_velocity"))
                     is_vel.append(True)
-                    sz.append(float(meas.sigma_z_m[i]) if use_z else 0.0)
+                    sz.append(float(sigma_z_m[i]) if sigma_z_m is not None else 0.0)
             for name, sc in data.scalars.items():
                 values.append(OutputColumn(lab, name, VALUE, math.nan))
                 obs.append(float(sc.value))
@@ -137,6 +137,8 @@ class OutputLayout:
         self.discrepancy_log10_bounds = (None if discrepancy_log10_bounds is None
                                          else tuple(float(b) for b in discrepancy_log10_bounds))
         self._torch: dict[str, torch.Tensor] = {}
+        #: Fitted parameters counted by :meth:`dof` (set by :meth:`from_problem`).
+        self.n_fitted: int | None = None
 
     @classmethod
     def from_problem(cls, problem: Any) -> OutputLayout:
@@ -230,6 +232,9 @@ class OutputLayout:
         """Fitted discrepancy sigma [m/s] at unit-cube points ``(..., d)``, or ``None``."""
         if self.discrepancy_index is None:
             return None
+        if self.discrepancy_log10_bounds is None:
+            raise InputDataError("OutputLayout: discrepancy_index is set but "
+                                 "discrepancy_log10_bounds is not; pass both.")
         lo, hi = self.discrepancy_log10_bounds
         u = X_unit[..., self.discrepancy_index]
         return 10.0 ** (lo + u * (hi - lo))
@@ -292,7 +297,7 @@ class OutputLayout:
 
     def dof(self) -> int:
         """Degrees of freedom used by the reduced chi-square: ``max(n - n_fitted, 1)``."""
-        p = getattr(self, "n_fitted", None)
+        p = self.n_fitted
         if p is None:  # the problem's count unless given; 0 without a problem
             p = self.likelihood.n_fitted or 0
         return max(self.n_values - int(p), 1)

@@ -25,7 +25,8 @@ def electron_gyrofrequency(magnetic_field_T: np.ndarray | float) -> np.ndarray:
     magnetic_field_T : array_like
         Magnetic field magnitude [T].
     """
-    return constants.e * np.abs(np.asarray(magnetic_field_T, dtype=float)) / constants.m_e
+    gyro: np.ndarray = constants.e * np.abs(np.asarray(magnetic_field_T, dtype=float)) / constants.m_e
+    return gyro
 
 
 @dataclass(frozen=True)
@@ -75,8 +76,8 @@ class AnomalousProfile:
         """Anomalous collision frequency [1/s] at ``z_m`` given the field there [T]."""
         values = self(z_m)
         if self.kind == "bohm":
-            return values * electron_gyrofrequency(magnetic_field_T)
-        return values
+            return np.asarray(values * electron_gyrofrequency(magnetic_field_T))
+        return np.asarray(values)
 
 
 def _scaled(function: Callable[[np.ndarray], np.ndarray], factor: float, z: np.ndarray) -> np.ndarray:

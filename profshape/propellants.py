@@ -44,16 +44,16 @@ class Propellant:
     @property
     def mass_kg(self) -> float:
         """Atomic mass [kg] (neutral atom)."""
-        return self.atomic_weight * constants.amu
+        return float(self.atomic_weight * constants.amu)
 
     @property
     def ion_mass_kg(self) -> float:
         """Mass of the singly charged ion [kg]."""
-        return self.mass_kg - constants.m_e
+        return float(self.mass_kg - constants.m_e)
 
     def max_ion_velocity(self, voltage_V: float) -> float:
         """Energy-conservation bound sqrt(2 e V / M) on ion speed [m/s]."""
-        return (2.0 * constants.e * voltage_V / self.ion_mass_kg) ** 0.5
+        return float((2.0 * constants.e * voltage_V / self.ion_mass_kg) ** 0.5)
 
 
 PROPELLANTS: dict[str, Propellant] = {

@@ -23,6 +23,7 @@ from __future__ import annotations
 import functools
 import json
 import math
+from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
@@ -30,7 +31,7 @@ import numpy as np
 import pandas as pd
 
 from .exceptions import InputDataError
-from .profile import AnomalousProfile
+from .profile import AnomalousProfile, ProfileKind
 
 __all__ = [
     "REFERENCE_FILE",
@@ -108,8 +109,11 @@ def reference_profile(z_m: np.ndarray, values: np.ndarray, kind: str, label: str
     """The reference as an :class:`AnomalousProfile` (``kind`` ``"bohm"`` or ``"frequency"``)."""
     z = np.asarray(z_m, dtype=float)
     v = np.asarray(values, dtype=float)
+    if kind not in ("bohm", "frequency"):
+        raise InputDataError(f"reference profile: kind must be 'bohm' or 'frequency'; got {kind!r}.")
+    checked: ProfileKind = "bohm" if kind == "bohm" else "frequency"
     fn = functools.partial(_log_interp, z, np.log10(v))
-    return AnomalousProfile(kind=kind, function=fn, coefficients={}, family=f"reference:{label}")
+    return AnomalousProfile(kind=checked, function=fn, coefficients={}, family=f"reference:{label}")
 
 
 def _run_all(problem: Any, profile: AnomalousProfile, executor: Any) -> dict[str, Any]:
@@ -200,7 +204,7 @@ def load_reference_result(out: str | Path) -> dict[str, Any] | None:
     return json.loads(path.read_text(encoding="utf-8"))
 
 
-def reference_curves(result: dict[str, Any] | None) -> dict[str, pd.DataFrame]:
+def reference_curves(result: Mapping[str, Any] | None) -> dict[str, pd.DataFrame]:
     """Ion-velocity curves of a reference result per label (ok points only)."""
     out: dict[str, pd.DataFrame] = {}
     for lab, pred in ((result or {}).get("predictions") or {}).items():

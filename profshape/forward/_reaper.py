@@ -143,12 +143,12 @@ def main(argv: list[str]) -> int:
         signal.signal(sig, signal.SIG_IGN)
     _kill_and_reap_all(0.0)  # what the finished program left behind
     if os.WIFSIGNALED(status):
-        sig = os.WTERMSIG(status)
+        term_sig = os.WTERMSIG(status)
         with contextlib.suppress(OSError, ValueError):  # SIGKILL cannot be handled
-            signal.signal(sig, signal.SIG_DFL)
+            signal.signal(term_sig, signal.SIG_DFL)
         sys.stdout.flush()
-        os.kill(os.getpid(), sig)
-        return 128 + sig
+        os.kill(os.getpid(), term_sig)
+        return 128 + term_sig
     return os.waitstatus_to_exitcode(status)
 
 

@@ -113,7 +113,7 @@ class CallableModel(ForwardModel):
                 f"CallableModel: func must be callable; got {type(func).__name__}."
             )
         self.func = func
-        self.name = name or getattr(func, "__qualname__", type(func).__name__)
+        self.name = name or str(getattr(func, "__qualname__", type(func).__name__))
         self.version = str(version)
         self._grid = None if grid_m is None else np.asarray(grid_m, dtype=float)
 

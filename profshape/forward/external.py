@@ -292,7 +292,11 @@ class ExternalModel(ForwardModel):
                            ("max_reason_chars", max_reason_chars)):
             if isinstance(value, bool) or not isinstance(value, int) or value < 1:
                 raise InputDataError(f"ExternalModel: {key} must be an integer >= 1; got {value!r}.")
-            setattr(self, key, value)
+        self.max_log_bytes: int = max_log_bytes
+        self.max_output_json_bytes: int = max_output_json_bytes
+        self.max_table_bytes: int = max_table_bytes
+        self.max_table_rows: int = max_table_rows
+        self.max_reason_chars: int = max_reason_chars
 
     def grid(self, point: OperatingPoint) -> np.ndarray | None:
         """The profile grid [m]."""

@@ -10,9 +10,12 @@ from __future__ import annotations
 
 from collections.abc import Iterable
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any, Literal
 
 from ..exceptions import InputDataError
+
+if TYPE_CHECKING:
+    from matplotlib.typing import RcKeyType
 
 __all__: list[str] = []
 
@@ -28,7 +31,7 @@ CMAP_REVERSED = "cividis_r"  # low misfit bright, high misfit dark
 PALETTE = ("#0f4c5c", "#b5651d", "#5b8e3e", "#8a4f7d", "#3a5f8f", "#7a6a3a")  # runs compared
 MARKERS = ("o", "s", "^", "D", "v", "P", "X", "*")
 DASHES = ("-", "--", "-.", ":")
-RC = {
+RC: dict[RcKeyType, Any] = {
     "font.size": 9.0,
     "axes.titlesize": 9.5,
     "axes.labelsize": 9.0,
@@ -43,7 +46,11 @@ RC = {
 }
 
 
-def new_figure(width_in: float, height_in: float, layout: str | None = "constrained") -> Any:
+FigureLayout = Literal["constrained", "compressed", "tight"]
+
+
+def new_figure(width_in: float, height_in: float,
+               layout: FigureLayout | None = "constrained") -> Any:
     """A matplotlib Figure not attached to pyplot (headless; no global state)."""
     from matplotlib.figure import Figure
 
@@ -61,19 +68,18 @@ def save(fig: Any, paths: str | Path | Iterable[str | Path] | None) -> None:
     """Save ``fig`` to each path (format from the suffix, e.g. ``.png``, ``.svg``)."""
     if paths is None:
         return
-    if isinstance(paths, str | Path):
-        paths = [paths]
-    paths = [Path(p) for p in paths]
-    for path in paths:
+    items = [paths] if isinstance(paths, str | Path) else paths
+    path_list = [Path(p) for p in items]
+    for path in path_list:
         if not path.suffix:
             raise InputDataError(
                 f"plot path {str(path)!r} has no suffix; end it in .png, .svg or .pdf."
             )
-    for k, path in enumerate(paths):
+    for k, path in enumerate(path_list):
         path.parent.mkdir(parents=True, exist_ok=True)
         with style():
             fig.savefig(path)
-        if k == 0 and len(paths) > 1 and fig.get_layout_engine() is not None:
+        if k == 0 and len(path_list) > 1 and fig.get_layout_engine() is not None:
             # the layout is solved; the other formats reuse it (constrained layout is the
             # slowest part of drawing a many-panel figure)
             fig.set_layout_engine("none")

@@ -129,7 +129,8 @@ def plot_fit(
         fig = _style.new_figure(3.5 * ncol, (3.6 if residuals else 2.7) * nrow)
         ratios = [3, 1.15] * nrow if residuals else [1] * nrow
         grid = fig.add_gridspec(len(ratios), ncol, height_ratios=ratios)
-        main_axes, res_axes = [], []
+        main_axes: list[Any] = []
+        res_axes: list[Any | None] = []
         for k in range(nrow * ncol):
             r, c = divmod(k, ncol)
             rr = 2 * r if residuals else r
@@ -193,8 +194,9 @@ def plot_fit(
                 ax.set_xlabel("axial position z [mm]")
         for k in range(len(labels), nrow * ncol):
             main_axes[k].set_visible(False)
-            if res_axes[k] is not None:
-                res_axes[k].set_visible(False)
+            rax_k = res_axes[k]
+            if rax_k is not None:
+                rax_k.set_visible(False)
         handles, names = main_axes[0].get_legend_handles_labels()
         if handles:
             fig.legend(handles, names, loc="outside lower center", ncol=min(len(handles), 5))

@@ -15,6 +15,7 @@ basin *b*. Ensembles that end in the same basin share it.
 from __future__ import annotations
 
 from collections.abc import Callable
+from typing import Any
 
 import numpy as np
 from scipy import optimize
@@ -113,7 +114,7 @@ def find_basins(
 
 def pool_by_basin(
     samples: list[np.ndarray], log_prob: list[np.ndarray], rng: np.random.Generator,
-) -> tuple[np.ndarray, np.ndarray, dict]:
+) -> tuple[np.ndarray, np.ndarray, dict[str, Any]]:
     """Weights of independent ensembles and a pooled sample drawn by those weights.
 
     Parameters

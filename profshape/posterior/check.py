@@ -59,7 +59,7 @@ class PosteriorCheck:
         coefficients by parameter name.
     n_draws, n_ok, n_failed : int
     failed_fraction, disagree_fraction : float
-        Failed draws over all; disagreeing draws (|z| > 3) over ok draws.
+        Failed draws over all; disagreeing draws (``|z| > 3``) over ok draws.
     median_difference_nats : float
         Median of real minus predicted log-likelihood over ok draws [nats].
     best_reduced_chi2 : float
@@ -75,7 +75,7 @@ class PosteriorCheck:
         Kolmogorov-Smirnov p-value of the draws' ``2 (l_best - l_draw)``
         against chi-square with d degrees of freedom (NaN when not tested).
     agreement_p_value : float
-        Binomial tail probability of at least the observed number of |z| > 3
+        Binomial tail probability of at least the observed number of ``|z| > 3``
         draws if the stated uncertainty were right.
     advice : str
         What to do when the check fails (empty when it passes).

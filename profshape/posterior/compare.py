@@ -120,7 +120,7 @@ def compare_families(
     for label, problem, trials in entries:
         n = int(problem.dataset.n_data)
         k = int(problem.dim)
-        ll = pd.to_numeric(trials.get("log_likelihood"), errors="coerce")
+        ll = pd.to_numeric(trials["log_likelihood"], errors="coerce")
         ok = (trials["status"].astype(str) == "ok") & np.isfinite(ll)
         best = float(ll[ok].max()) if ok.any() else -math.inf
         rchi = pd.to_numeric(trials.loc[ok, "reduced_chi2"], errors="coerce") \

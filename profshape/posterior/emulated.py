@@ -75,9 +75,9 @@ class _ScorePredictor:
         tf = model.outcome_transform
         self.y_mean = tf.means.detach().cpu().numpy().reshape(k)
         self.y_std = tf.stdvs.detach().cpu().numpy().reshape(k)
-        k = _matern52_batch(self.x, self.x, self.lengthscale)
-        k = k + noise[:, None, None] * np.eye(len(self.x))[None]
-        chol = np.linalg.cholesky(k)
+        kxx = _matern52_batch(self.x, self.x, self.lengthscale)
+        kxx = kxx + noise[:, None, None] * np.eye(len(self.x))[None]
+        chol = np.linalg.cholesky(kxx)
         resid = y - self.constant[:, None]
         self.alpha = np.stack([linalg.cho_solve((chol[c], True), resid[c])
                                for c in range(len(resid))])

@@ -192,7 +192,7 @@ def _sample_target(
     functions, labels = target.targets(n_ens, rng)
     samples, logp, diags = [], [], []
     for e, f in enumerate(functions):
-        def log_prob(u: np.ndarray, f=f) -> np.ndarray:
+        def log_prob(u: np.ndarray, f: Callable[[np.ndarray], np.ndarray] = f) -> np.ndarray:
             prior = lp_u(u)
             out = np.full(u.shape[0], -np.inf)
             fin = np.isfinite(prior)

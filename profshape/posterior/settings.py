@@ -135,7 +135,7 @@ class PosteriorSettings:
         Extra tolerance [nats] added in quadrature to the surrogate's predictive
         standard deviation when comparing it to a forward run.
     check_max_disagree_fraction : float, default=0.25
-        Warn when more than this fraction of checked draws disagree (|z| > 3).
+        Warn when more than this fraction of checked draws disagree (``|z| > 3``).
     check_max_failed_fraction : float, default=0.25
         Warn when more than this fraction of checked draws fail to run.
     log_likelihood_floor_nats : float, default=150.0

@@ -17,11 +17,15 @@ function, so an MCMC sampler can run on it.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 from scipy import linalg
 
 from ..exceptions import InputDataError
+
+if TYPE_CHECKING:
+    from botorch.models import SingleTaskGP
 
 __all__ = ["GPRealisation", "LogLikelihoodSurrogate", "fit_log_likelihood_surrogate"]
 
@@ -85,7 +89,8 @@ class LogLikelihoodSurrogate:
         Largest training log-likelihood [nats].
     """
 
-    def __init__(self, model, train_u, train_ll, y_mean, y_std, floor) -> None:
+    def __init__(self, model: SingleTaskGP, train_u: np.ndarray, train_ll: np.ndarray,
+                 y_mean: float, y_std: float, floor: float) -> None:
         self.model = model
         self.train_u = train_u
         self.train_log_likelihood = train_ll

@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 import pandas as pd
@@ -140,8 +140,8 @@ def goodness_of_fit(chi2: float, dof: int, residuals: pd.DataFrame | None = None
         total = float(residuals["chi2"].sum()) or 1.0
         per_obs = (residuals.groupby(["label", "observable"], sort=False)["chi2"].sum()
                    .sort_values(ascending=False))
-        details["per_observable_share"] = {f"{lab}/{obs}": float(v / total)
-                                           for (lab, obs), v in per_obs.items()}
+        shares = [(*cast(tuple[str, str], key), float(v)) for key, v in per_obs.items()]
+        details["per_observable_share"] = {f"{lab}/{obs}": v / total for lab, obs, v in shares}
         top = residuals.sort_values("chi2", ascending=False).head(int(n_top))
         items = []
         for r in top.to_dict("records"):
@@ -151,7 +151,7 @@ def goodness_of_fit(chi2: float, dof: int, residuals: pd.DataFrame | None = None
         details["dominant"] = [
             {k: (None if isinstance(v, float) and not math.isfinite(v) else v)
              for k, v in r.items()} for r in top.to_dict("records")]
-        (lab, obs), v = next(iter(per_obs.items()))
+        lab, obs, v = shares[0]
         dominant = (f"; the misfit is dominated by {', '.join(items)}; by observable "
                     f"{lab}/{obs} holds {v / total:.0%}")
     if p < CHECK_ALPHA:
@@ -331,8 +331,8 @@ def map_vs_best(map_coefficients: dict[str, float], map_log_likelihood: float, m
 
 
 # ------------------------------------------------------------ all together
-def _best_row(frames: list[pd.DataFrame]) -> tuple[pd.Series | None, str]:
-    best, where = None, ""
+def _best_row(frames: list[tuple[pd.DataFrame | None, str]]) -> tuple[pd.Series | None, str]:
+    best: tuple[pd.Series, float, str] | None = None
     for frame, label in frames:
         if frame is None or not len(frame) or "reduced_chi2" not in frame:
             continue
@@ -348,9 +348,8 @@ def _best_row(frames: list[pd.DataFrame]) -> tuple[pd.Series | None, str]:
         return None, ""
     row, _, label = best
     trial = row.get("trial")
-    where = f"the best fit ({label}" + (f" {int(trial)}" if trial is not None
-                                        and pd.notna(trial) else "") + ")"
-    return row, where
+    suffix = f" {int(trial)}" if trial is not None and bool(pd.notna(trial)) else ""
+    return row, f"the best fit ({label}{suffix})"
 
 
 def best_fit(trials: pd.DataFrame, posterior: Any = None,
@@ -361,7 +360,7 @@ def best_fit(trials: pd.DataFrame, posterior: Any = None,
     (``"trial"`` or ``"posterior run"``) and ``trial`` (or None), or None
     without a successful run.
     """
-    frames = [(trials, "trial")]
+    frames: list[tuple[pd.DataFrame | None, str]] = [(trials, "trial")]
     if posterior is not None and len(getattr(posterior, "forward_runs", [])):
         frames.append((posterior.forward_runs, "posterior run"))
     row, _ = _best_row(frames)
@@ -369,12 +368,13 @@ def best_fit(trials: pd.DataFrame, posterior: Any = None,
         return None
     names = list(names if names is not None else posterior.names)
     trial = row.get("trial")
-    is_trial = trial is not None and pd.notna(trial)
+    trial_number = int(trial) if trial is not None and bool(pd.notna(trial)) else None
+    is_trial = trial_number is not None
     return {"coefficients": {n: float(row[n]) for n in names},
             "chi2": float(row["chi2"]) if "chi2" in row and pd.notna(row["chi2"]) else None,
             "reduced_chi2": float(row["reduced_chi2"]),
             "source": "trial" if is_trial else f"posterior run ({row.get('source', '')})",
-            "trial": int(trial) if is_trial else None}
+            "trial": trial_number}
 
 
 def run_checks(problem: PosteriorProblem, trials: pd.DataFrame, posterior: Any = None) -> list[CheckOutcome]:
@@ -388,7 +388,7 @@ def run_checks(problem: PosteriorProblem, trials: pd.DataFrame, posterior: Any =
     posterior : PosteriorResult, optional
         Adds the predictive, sampler, interval and MAP checks.
     """
-    frames = [(trials, "trial")]
+    frames: list[tuple[pd.DataFrame | None, str]] = [(trials, "trial")]
     if posterior is not None and len(getattr(posterior, "forward_runs", [])):
         frames.append((posterior.forward_runs, "posterior run"))
     row, where = _best_row(frames)
@@ -412,7 +412,8 @@ def run_checks(problem: PosteriorProblem, trials: pd.DataFrame, posterior: Any =
     out.append(sampler(posterior.diagnostics))
     ok = trials[trials["status"] == "ok"]
     if len(ok):
-        best = ok.loc[pd.to_numeric(ok["log_likelihood"], errors="coerce").idxmax()]
+        i_best = pd.to_numeric(ok["log_likelihood"], errors="coerce").idxmax()
+        best = ok.loc[i_best]  # type: ignore[call-overload]  # pandas-stubs: a label is Hashable
         best_c = {n: float(best[n]) for n in posterior.names}
         points = {"MAP": posterior.map_coefficients}
         if row is not None:  # the reported best fit: the best real run of all

@@ -17,6 +17,7 @@ from the best of ``raw_samples`` random points).
 from __future__ import annotations
 
 import warnings
+from typing import Any
 
 import numpy as np
 import torch
@@ -25,6 +26,7 @@ from botorch.acquisition.analytic import LogConstrainedExpectedImprovement
 from botorch.acquisition.logei import qLogNoisyExpectedImprovement
 from botorch.acquisition.objective import GenericMCObjective
 from botorch.exceptions.warnings import OptimizationWarning
+from botorch.models.model import Model
 from botorch.optim import optimize_acqf
 from botorch.sampling import SobolQMCNormalSampler
 from linear_operator.utils.warnings import NumericalWarning
@@ -44,7 +46,7 @@ def _feasibility_constraint(samples: torch.Tensor) -> torch.Tensor:
 
 
 def make_acquisition(
-    model,
+    model: Model,
     train_u: np.ndarray,
     train_y: np.ndarray,
     *,
@@ -86,7 +88,7 @@ def make_acquisition(
             )
         return LogExpectedImprovement(model, best_f=best_f)
     sampler = SobolQMCNormalSampler(sample_shape=torch.Size([mc_samples]), seed=seed)
-    kwargs = {}
+    kwargs: dict[str, Any] = {}
     if has_feasibility:
         kwargs = {
             "objective": GenericMCObjective(_objective_output),
@@ -145,4 +147,6 @@ def optimize_acquisition(
             sequential=q > 1,
             options={"maxiter": 200, "seed": seed % (2**31)},
         )
+    if val is None:  # only with return_acq_values=False, which is not asked for
+        raise RuntimeError("optimize_acqf returned no acquisition values.")
     return cand.detach().cpu().numpy().reshape(q, dim), val.detach().cpu().numpy()

@@ -44,6 +44,8 @@ from __future__ import annotations
 
 import math
 import warnings
+from collections.abc import Mapping, Sequence
+from typing import Any
 
 import numpy as np
 import torch
@@ -51,6 +53,7 @@ from botorch.acquisition import AcquisitionFunction
 from botorch.acquisition.logei import qLogExpectedImprovement
 from botorch.acquisition.objective import GenericMCObjective
 from botorch.exceptions.warnings import OptimizationWarning
+from botorch.models import SingleTaskGP
 from botorch.optim import optimize_acqf
 from botorch.sampling import SobolQMCNormalSampler
 from linear_operator.utils.warnings import NumericalWarning
@@ -94,12 +97,13 @@ HYPER_SUBSET = 80
 EXPLORE_DISTANCE = 0.25
 
 
-def composite_misfit(layout: OutputLayout, Y, X):
+def composite_misfit(layout: OutputLayout, Y: Any, X: Any) -> Any:
     """The misfit the composite strategy minimises, for outputs ``Y`` at unit-cube ``X``.
 
     The chi-square; with a fitted discrepancy sigma (a coordinate of ``X``) the
     deviance ``-2 ln L`` instead, since the chi-square alone falls without end as
-    the discrepancy grows.
+    the discrepancy grows. ``Y`` and ``X`` are numpy arrays or torch tensors (of
+    shapes ``(..., m)`` and ``(..., d)``); the result has the same kind, of shape ``(...)``.
     """
     disc = layout.discrepancy_from_unit(X)
     if disc is None:
@@ -113,7 +117,7 @@ def stall_length(dim: int) -> int:
 
 
 def fit_emulator(u: np.ndarray, Y: np.ndarray, layout: OutputLayout, *, seed: int,
-                 warm: dict[str, list[float]] | None, refit: bool,
+                 warm: Mapping[str, Sequence[float]] | None, refit: bool,
                  max_attempts: int = 2) -> OutputEmulator:
     """Fit the search's emulator to the successful trials.
 
@@ -139,7 +143,9 @@ def fit_emulator(u: np.ndarray, Y: np.ndarray, layout: OutputLayout, *, seed: in
         best, rest = order[: HYPER_SUBSET // 2], np.sort(order[HYPER_SUBSET // 2:])
         spread = rest[np.linspace(0, len(rest) - 1, HYPER_SUBSET - len(best)).astype(int)]
         subset = np.concatenate([best, spread])
-    em.fit(u, Y, scale=layout.scale, warm_start=warm, optimize=refit, hyper_subset=subset)
+    warm_start: dict[str, Sequence[float]] | None = None if warm is None else dict(warm)
+    em.fit(u, Y, scale=layout.scale, warm_start=warm_start, optimize=refit,
+           hyper_subset=subset)
     return em
 
 
@@ -156,7 +162,8 @@ class CompositeAcquisition(AcquisitionFunction):
         improvement.
     """
 
-    def __init__(self, log_ei: qLogExpectedImprovement, feasibility=None) -> None:
+    def __init__(self, log_ei: qLogExpectedImprovement,
+                 feasibility: SingleTaskGP | None = None) -> None:
         super().__init__(model=log_ei.model)
         self.log_ei = log_ei
         self.feasibility = feasibility
@@ -164,8 +171,9 @@ class CompositeAcquisition(AcquisitionFunction):
     def set_X_pending(self, X_pending: Tensor | None = None) -> None:
         self.log_ei.set_X_pending(X_pending)
 
-    @property
-    def X_pending(self) -> Tensor | None:  # type: ignore[override]
+    # botorch declares X_pending a plain attribute; a settable property stands in for it
+    @property  # type: ignore[override]
+    def X_pending(self) -> Tensor | None:
         return self.log_ei.X_pending
 
     @X_pending.setter
@@ -184,7 +192,8 @@ class CompositeAcquisition(AcquisitionFunction):
 
 
 def composite_acquisition(emulator: OutputEmulator, layout: OutputLayout, best_chi2: float,
-                          *, pending_u: np.ndarray | None, feasibility=None,
+                          *, pending_u: np.ndarray | None,
+                          feasibility: SingleTaskGP | None = None,
                           mc_samples: int = 128, seed: int = 0) -> CompositeAcquisition:
     """The composite log expected improvement (see the module docstring)."""
 

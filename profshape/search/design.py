@@ -47,12 +47,14 @@ def sobol_points(n: int, dim: int, seed: int, start: int = 0) -> np.ndarray:
     engine = qmc.Sobol(d=dim, scramble=True, seed=np.random.default_rng(seed))
     if start:
         engine.fast_forward(start)
-    return engine.random(n)
+    points: np.ndarray = engine.random(n)
+    return points
 
 
 def sobol_point(index: int, dim: int, seed: int) -> np.ndarray:
     """Point ``index`` of the scrambled Sobol sequence of :func:`sobol_points`."""
-    return sobol_points(1, dim, seed, start=index)[0]
+    point: np.ndarray = sobol_points(1, dim, seed, start=index)[0]
+    return point
 
 
 def user_points_to_unit(
@@ -105,7 +107,7 @@ def user_points_to_unit(
         bad = np.flatnonzero((u < -1e-9) | (u > 1 + 1e-9))
         if bad.size:
             raise InputDataError(
-                f"initial_points[{i}]: {[names[j] for j in bad]} outside the search bounds "
+                f"initial_points[{i}]: {[names[int(j)] for j in bad]} outside the search bounds "
                 f"(unit-cube values {u[bad].round(4).tolist()}); move the point inside the "
                 "bounds or widen them."
             )

@@ -16,7 +16,11 @@ from typing import Any
 
 import numpy as np
 import torch
+from botorch.acquisition import AcquisitionFunction
+from botorch.models import SingleTaskGP
+from botorch.models.model import Model
 
+from ..emulator import OutputEmulator
 from ..exceptions import ConfigError, InputDataError
 from ..output_layout import OutputLayout
 from .acquisition import make_acquisition, optimize_acquisition
@@ -195,12 +199,12 @@ class Search:
         self._n_user = 0
         self._pending: dict[int, Proposal] = {}
         self._observations: dict[int, Observation] = {}
-        self.model_ = None
-        self.objective_model_ = None
-        self.feasibility_model_ = None
-        self.acquisition_ = None
+        self.model_: Model | None = None
+        self.objective_model_: SingleTaskGP | None = None
+        self.feasibility_model_: SingleTaskGP | None = None
+        self.acquisition_: AcquisitionFunction | None = None
         self.trust_region_bounds_: np.ndarray | None = None
-        self.emulator_ = None
+        self.emulator_: OutputEmulator | None = None
         self._warm: dict[str, dict[str, list[float]]] = {}
         self._kinds: dict[int, str] = {}
         self.layout: OutputLayout | None = None
@@ -243,6 +247,18 @@ class Search:
         if not ok:
             return None
         return min(ok, key=lambda o: (o.value, o.trial))
+
+    def _require_best(self) -> Observation:
+        b = self.best()
+        if b is None:
+            raise RuntimeError("Search: no successful trial yet.")
+        return b
+
+    def _require_layout(self) -> OutputLayout:
+        if self.layout is None:
+            raise RuntimeError("Search: the composite strategy needs the problem's output "
+                               "layout (a problem with a data set).")
+        return self.layout
 
     def best_coefficients(self) -> dict[str, float] | None:
         """Physical coefficients of :meth:`best`."""
@@ -400,12 +416,13 @@ class Search:
         # hyperparameters re-optimised only when a new failure has arrived
         meta = self._warm.get("feasibility_meta", {})
         refit = "feasibility" not in self._warm or meta.get("n_failed", [-1])[0] != n_failed
-        self.feasibility_model_ = fit_feasibility_model(
+        feasibility = fit_feasibility_model(
             np.array([o.u for o in obs]), np.array([not o.ok for o in obs]),
             max_attempts=self.settings.max_fit_attempts,
             warm_start=self._warm.get("feasibility"), optimize=refit,
         )
-        self._warm["feasibility"] = hyperparameters(self.feasibility_model_)
+        self.feasibility_model_ = feasibility
+        self._warm["feasibility"] = hyperparameters(feasibility)
         self._warm["feasibility_meta"] = {"n_failed": [float(n_failed)]}
 
     def _fit(self) -> None:
@@ -418,12 +435,13 @@ class Search:
         attempts = self.settings.max_fit_attempts
         with torch.random.fork_rng():
             torch.manual_seed(derived_seed(self.settings.seed, "fit", self._next_trial) % 2**63)
-            self.objective_model_ = fit_objective_model(
+            objective = fit_objective_model(
                 u_ok, y_ok, max_attempts=attempts, warm_start=self._warm.get("objective")
             )
-            self._warm["objective"] = hyperparameters(self.objective_model_)
+            self.objective_model_ = objective
+            self._warm["objective"] = hyperparameters(objective)
             self._fit_feasibility()
-        self.model_ = combined_model(self.objective_model_, self.feasibility_model_)
+        self.model_ = combined_model(objective, self.feasibility_model_)
         self._train = (u_ok, y_ok)
 
     def _fit_composite(self) -> None:
@@ -436,7 +454,7 @@ class Search:
         seed = derived_seed(self.settings.seed, "fit", self._next_trial)
         with torch.random.fork_rng():
             torch.manual_seed(seed % 2**63)
-            em = fit_emulator(u_ok, Y_ok, self.layout, seed=seed % 2**31,
+            em = fit_emulator(u_ok, Y_ok, self._require_layout(), seed=seed % 2**31,
                               warm=self._warm.get("emulator"), refit=refit,
                               max_attempts=self.settings.max_fit_attempts)
             self._fit_feasibility()
@@ -446,7 +464,8 @@ class Search:
                 self._warm["emulator_meta"] = {"n_fit": [float(n)]}
         self.emulator_ = em
         self.model_ = em.model()
-        self._train_composite = (u_ok, np.asarray(composite_misfit(self.layout, Y_ok, u_ok)))
+        self._train_composite = (u_ok, np.asarray(composite_misfit(self._require_layout(), Y_ok,
+                                                                   u_ok)))
 
     def trust_region(self) -> TrustRegionState:
         """Trust-region state now, replayed from the finished trials (see
@@ -458,7 +477,7 @@ class Search:
 
     def _next_kind(self) -> str:
         """Kind of the next model-based batch under the configured strategy."""
-        strategy = self.settings.strategy
+        strategy: str = self.settings.strategy
         if strategy == COMPOSITE:
             if self._composite_ready():
                 return self._composite_kind()
@@ -480,7 +499,7 @@ class Search:
     def _composite_kind(self) -> str:
         """``"explore"`` after ``stall_length(d)`` composite proposals since the best
         trial (or the last exploration), else ``"composite"``."""
-        b = self.best()
+        b = self._require_best()
         ref = max([b.trial] + [t for t, k in self._kinds.items() if k == EXPLORE])
         since = sum(1 for t, k in self._kinds.items() if t > ref and k == COMPOSITE)
         return EXPLORE if since >= stall_length(self.dim) else COMPOSITE
@@ -489,11 +508,13 @@ class Search:
         if kind != TRUST_REGION:
             self.trust_region_bounds_ = None
             return None
+        if self.objective_model_ is None:
+            raise RuntimeError("Search: the objective GP is not fitted yet (call fit() first).")
         kernel = self.objective_model_.covar_module
         kernel = getattr(kernel, "base_kernel", kernel)
         ls = kernel.lengthscale.detach().cpu().numpy().reshape(-1)
         self.trust_region_bounds_ = trust_region_bounds(
-            self.best().u, ls, self.trust_region().length
+            self._require_best().u, ls, self.trust_region().length
         )
         return self.trust_region_bounds_
 
@@ -515,26 +536,32 @@ class Search:
             self._fit_composite()
             kind = self._composite_kind()
             self.trust_region_bounds_ = None
-            if self.emulator_.n_components_ == 0:  # outputs all alike so far: space-filling
+            emulator = self.emulator_
+            if emulator is None:
+                raise RuntimeError("Search: the emulator is not fitted.")
+            if emulator.n_components_ == 0:  # outputs all alike so far: space-filling
                 return np.array([self._sobol_next() for _ in range(q)]), EXPLORE
             u_ok, chi2 = self._train_composite
             seed = derived_seed(self.settings.seed, "proposal", self._next_trial)
             with torch.random.fork_rng():
                 torch.manual_seed(seed)
-                self.acquisition_ = composite_acquisition(
-                    self.emulator_, self.layout, float(np.min(chi2)),
+                acquisition = composite_acquisition(
+                    emulator, self._require_layout(), float(np.min(chi2)),
                     pending_u=pending_u if len(pending_u) else None,
                     feasibility=self.feasibility_model_, mc_samples=self.settings.mc_samples,
                     seed=seed % 2**31)
+                self.acquisition_ = acquisition
                 cand = propose_composite(
-                    self.acquisition_, self.dim, q, u_ok=u_ok, chi2_ok=chi2,
+                    acquisition, self.dim, q, u_ok=u_ok, chi2_ok=chi2,
                     num_restarts=self.settings.num_restarts,
                     raw_samples=self.settings.raw_samples, seed=seed % 2**31, kind=kind)
             return cand, kind
 
     def _optimize(self, q: int, pending_u: np.ndarray, u_ok: np.ndarray, y_ok: np.ndarray,
                   seed: int, bounds: np.ndarray | None = None) -> np.ndarray:
-        self.acquisition_ = make_acquisition(
+        if self.model_ is None:
+            raise RuntimeError("Search: the GP is not fitted yet (call fit() first).")
+        acquisition = make_acquisition(
             self.model_,
             u_ok,
             y_ok,
@@ -544,8 +571,9 @@ class Search:
             mc_samples=self.settings.mc_samples,
             seed=seed % 2**31,
         )
+        self.acquisition_ = acquisition
         cand, _ = optimize_acquisition(
-            self.acquisition_,
+            acquisition,
             self.dim,
             q=q,
             num_restarts=self.settings.num_restarts,
@@ -672,17 +700,23 @@ class Search:
         if self._composite_ready():
             if self.emulator_ is None:
                 self.fit()
+            emulator, layout = self.emulator_, self._require_layout()
+            if emulator is None:
+                raise RuntimeError("Search: the emulator could not be fitted.")
             u = np.asarray(u, dtype=float).reshape(-1, self.dim)
-            draws = self.emulator_.sample(u, 256, seed=self.settings.seed)  # (s, n, m)
-            disc = self.layout.discrepancy_from_unit(u)
+            draws = emulator.sample(u, 256, seed=self.settings.seed)  # (s, n, m)
+            disc = layout.discrepancy_from_unit(u)
             log_r = np.log(np.maximum(
-                np.asarray(self.layout.chi2(draws, disc)) / self.layout.dof(), 1e-300))
+                np.asarray(layout.chi2(draws, disc)) / layout.dof(), 1e-300))
             return log_r.mean(axis=0), log_r.std(axis=0)
         if self.objective_model_ is None:
             self.fit()
+        objective = self.objective_model_
+        if objective is None:
+            raise RuntimeError("Search: the objective GP could not be fitted.")
         x = torch.as_tensor(np.asarray(u, dtype=float).reshape(-1, self.dim), dtype=torch.float64)
         with torch.no_grad():
-            post = self.objective_model_.posterior(x)
+            post = objective.posterior(x)
             mean = -post.mean.reshape(-1).numpy()
             std = post.variance.clamp_min(0).sqrt().reshape(-1).numpy()
         return mean, std

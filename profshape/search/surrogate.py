@@ -33,12 +33,13 @@ Feasibility model
 from __future__ import annotations
 
 import warnings
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 
 import numpy as np
 import torch
 from botorch.fit import fit_gpytorch_mll
 from botorch.models import ModelListGP, SingleTaskGP
+from botorch.models.model import Model
 from botorch.models.transforms import Standardize
 from botorch.models.utils.gpytorch_modules import get_covar_module_with_dim_scaled_prior
 from gpytorch.constraints import GreaterThan
@@ -85,7 +86,7 @@ def hyperparameters(model: SingleTaskGP) -> dict[str, list[float]]:
     return {k: v.detach().reshape(-1).tolist() for k, v in model.named_parameters()}
 
 
-def set_hyperparameters(model: SingleTaskGP, values: dict[str, Sequence[float]]) -> bool:
+def set_hyperparameters(model: SingleTaskGP, values: Mapping[str, Sequence[float]]) -> bool:
     """Load raw hyperparameters (from :func:`hyperparameters`) into ``model``.
 
     Returns
@@ -122,7 +123,7 @@ def map_objective(mll: ExactMarginalLogLikelihood) -> float:
     return value if np.isfinite(value) else -float("inf")
 
 
-def _warm_start(mll: ExactMarginalLogLikelihood, warm: dict[str, Sequence[float]] | None) -> None:
+def _warm_start(mll: ExactMarginalLogLikelihood, warm: Mapping[str, Sequence[float]] | None) -> None:
     """Start from ``warm`` if it scores better than the default start on this data."""
     if not warm:
         return
@@ -136,7 +137,7 @@ def _warm_start(mll: ExactMarginalLogLikelihood, warm: dict[str, Sequence[float]
 
 
 def _fit(model: SingleTaskGP, max_attempts: int,
-         warm_start: dict[str, Sequence[float]] | None = None,
+         warm_start: Mapping[str, Sequence[float]] | None = None,
          max_iter: int = 200, optimize: bool = True) -> SingleTaskGP:
     if not optimize and warm_start and set_hyperparameters(model, warm_start):
         model.eval()  # condition on the data with the given hyperparameters
@@ -164,7 +165,7 @@ def fit_objective_model(
     train_y: np.ndarray,
     *,
     max_attempts: int = 3,
-    warm_start: dict[str, Sequence[float]] | None = None,
+    warm_start: Mapping[str, Sequence[float]] | None = None,
 ) -> SingleTaskGP:
     """Fit the objective GP.
 
@@ -205,7 +206,7 @@ def fit_feasibility_model(
     failed: np.ndarray,
     *,
     max_attempts: int = 3,
-    warm_start: dict[str, Sequence[float]] | None = None,
+    warm_start: Mapping[str, Sequence[float]] | None = None,
     optimize: bool = True,
 ) -> SingleTaskGP:
     """Fit the failure-indicator GP on all trials.
@@ -245,7 +246,7 @@ def fit_feasibility_model(
     return _fit(model, max_attempts, warm_start, optimize=optimize)
 
 
-def combined_model(objective: SingleTaskGP, feasibility: SingleTaskGP | None):
+def combined_model(objective: SingleTaskGP, feasibility: SingleTaskGP | None) -> Model:
     """Objective alone, or a two-output :class:`ModelListGP` (objective, failure)."""
     if feasibility is None:
         return objective

@@ -25,11 +25,11 @@ class LogSpline(ShapeFamily):
     monotone set of nodes gives a monotone profile. Outside the first and
     last node the profile is held constant.
 
-    Parameters (coefficient order)
-    ------------------------------
-    log10_level_0 … log10_level_{K-1} : log10 of the profile at the nodes.
-    node_z_m_1 … node_z_m_{K-2} : interior node positions [m] (only when
-        ``free_nodes``); each moves within its own interval, so nodes never cross.
+    Coefficients, in order:
+
+    - ``log10_level_0 … log10_level_{K-1}``: log10 of the profile at the nodes.
+    - ``node_z_m_1 … node_z_m_{K-2}``: interior node positions [m] (only when
+      ``free_nodes``); each moves within its own interval, so nodes never cross.
 
     Parameters
     ----------

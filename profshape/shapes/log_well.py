@@ -20,12 +20,12 @@ class LogWell(ShapeFamily):
     A positive depth ``d`` [decades] is a well (less transport near ``z_c``,
     as is typical where the magnetic field peaks); a negative one is a bump.
 
-    Parameters (coefficient order)
-    ------------------------------
-    log10_baseline : log10 of the level away from the well.
-    depth_decades : depth of the well in decades (negative for a bump).
-    centre_z_m : centre of the well [m].
-    width_m : Gaussian standard deviation of the well [m].
+    Coefficients, in order:
+
+    - ``log10_baseline``: log10 of the level away from the well.
+    - ``depth_decades``: depth of the well in decades (negative for a bump).
+    - ``centre_z_m``: centre of the well [m].
+    - ``width_m``: Gaussian standard deviation of the well [m].
 
     Parameters
     ----------

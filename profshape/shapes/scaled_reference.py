@@ -85,7 +85,10 @@ class ScaledReference(ShapeFamily):
                     f"of the same shape as z ({z.shape}); got shape {v.shape}."
                 )
             return v
-        return 10.0 ** np.interp(z, self._ref_z, self._ref_log)
+        if self._ref_z is None or self._ref_log is None:
+            raise InputDataError("scaled_reference: neither a reference callable nor a table is set.")
+        values: np.ndarray = 10.0 ** np.interp(z, self._ref_z, self._ref_log)
+        return values
 
     def _log10_values(self, c: Any, z: Any, xp: Any) -> Any:
         z_np = z.detach().cpu().numpy() if xp.is_torch else z

@@ -18,12 +18,12 @@ class SmoothStep(ShapeFamily):
         \log_{10} c(z) = a_\mathrm{in} + (a_\mathrm{out} - a_\mathrm{in})\,
         \tfrac12 \left[1 + \tanh\!\left(\frac{z - z_t}{w}\right)\right]
 
-    Parameters (coefficient order)
-    ------------------------------
-    log10_inner_level : log10 of the level near the anode (inside the channel).
-    log10_outer_level : log10 of the level far downstream (near plume).
-    transition_z_m : location of the step [m].
-    transition_width_m : half-width of the step [m] (10 %–90 % over about 2.2 w).
+    Coefficients, in order:
+
+    - ``log10_inner_level``: log10 of the level near the anode (inside the channel).
+    - ``log10_outer_level``: log10 of the level far downstream (near plume).
+    - ``transition_z_m``: location of the step [m].
+    - ``transition_width_m``: half-width of the step [m] (10 %–90 % over about 2.2 w).
 
     Parameters
     ----------

@@ -78,8 +78,8 @@ reconstruction of density and velocity limited by van Leer's harmonic limiter
 (``ion_scheme_order=1`` gives first order); neutrals: upwind fluxes with the
 same reconstruction. Ions and neutrals advance with SSP-RK2 (Shu and Osher
 1988; ``time_order=1``: forward Euler) with E, rates and T_e frozen over the
-step; the time step is the smaller of a Courant number on |u_i| + c_s and the
-same number on the ion acceleration time sqrt(dz M / (e |E|)). Electron
+step; the time step is the smaller of a Courant number on ``|u_i| + c_s`` and the
+same number on the ion acceleration time ``sqrt(dz M / (e |E|))``. Electron
 energy: backward Euler in T_e (one tridiagonal solve per step) with
 convection central where the cell Peclet number is below 2 and upwind beyond
 (hybrid scheme), the wall power linearised in T_e (Newton). The Coulomb

@@ -62,7 +62,7 @@ class SolverSettings:
     n_cells : int, default=160
         Number of uniform axial cells between anode and cathode plane.
     cfl : float, default=0.6
-        Courant number on the ion fast speed |u_i| + c_s.
+        Courant number on the ion fast speed ``|u_i| + c_s``.
     window_s : float, default=7.5e-5
         Length of one averaging window [s].
     min_time_s : float, default=2.5e-5
@@ -77,7 +77,7 @@ class SolverSettings:
         Convergence tolerance: relative change of the window-averaged
         discharge current and exit ion velocity between consecutive windows.
     mass_tolerance : float, default=0.01
-        Required heavy-particle balance |outlet flow / anode flow - 1| over
+        Required heavy-particle balance ``|outlet flow / anode flow - 1|`` over
         the averaging window.
     max_time_step_s : float, default=5e-8
         Upper bound on the time step [s].

@@ -19,6 +19,7 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from ..exceptions import InputDataError
@@ -87,7 +88,9 @@ def comparison_table(runs: Sequence[str | Path], criterion: str = "bic") -> tupl
         bands[label] = PosteriorBands.load(run / BANDS_DIR).profile \
             if (run / BANDS_DIR / BANDS_PROFILE_FILE).exists() else None
         ok = trials[trials["status"] == "ok"]
-        best_trials[label] = int(ok.loc[ok["reduced_chi2"].idxmin(), "trial"]) if len(ok) else None
+        best_trials[label] = (
+            int(ok["trial"].to_numpy()[np.nanargmin(ok["reduced_chi2"].to_numpy(dtype=float))])
+            if len(ok) else None)
         intervals[label] = _intervals(post)
     table = compare_families(entries, posteriors=posteriors, criterion=criterion)
     table.insert(2, "run", [str(paths[labels.index(lab)]) for lab in table["label"]])

@@ -89,13 +89,15 @@ def _best_row(trials: pd.DataFrame) -> pd.Series:
                                                                         errors="coerce"))]
     if ok.empty:
         raise InputDataError("export: the run has no successful trial; nothing to export.")
-    return ok.loc[ok["reduced_chi2"].idxmin()]
+    row: pd.Series = ok.loc[ok["reduced_chi2"].idxmin()]
+    return row
 
 
 def _grid(cal: Any, bands: pd.DataFrame | None) -> np.ndarray:
     if bands is not None and len(bands):
         first = bands["label"].iloc[0]
-        return bands.loc[bands["label"] == first, "z_m"].to_numpy(dtype=float)
+        z: np.ndarray = bands.loc[bands["label"] == first, "z_m"].to_numpy(dtype=float)
+        return z
     if cal.device is not None:
         return np.linspace(0.0, float(cal.device.domain_length_m), 200)
     zs = [p.ion_velocity.z_m for p in cal.problem.dataset if p.ion_velocity is not None]
