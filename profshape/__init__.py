@@ -12,6 +12,8 @@ The heavy parts (torch, botorch, numba) are imported on first use, so that
 - :mod:`profshape.problem`: a calibration problem (family + data + forward model).
 - :mod:`profshape.search`: the Bayesian-optimisation search.
 - :mod:`profshape.posterior`: posterior sampling, bands and predictions.
+- :mod:`profshape.workflow`: the job from a calibration file (``calibrate``, ``resume``,
+  the output folder and its report).
 """
 
 from __future__ import annotations

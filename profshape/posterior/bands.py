@@ -45,6 +45,10 @@ def band_file(table: str) -> str:
     return f"bands_{table}.parquet"
 
 
+def _to_parquet(table: pd.DataFrame, path: str) -> None:
+    table.to_parquet(path, index=False)
+
+
 #: Emulator draws start at this many and double until the band's quantiles are stable.
 EMULATED_DRAWS_START = 1000
 #: Most emulator draws.
@@ -146,9 +150,8 @@ class PosteriorBands:
         folder = Path(folder)
         folder.mkdir(parents=True, exist_ok=True)
         for name in BAND_TABLES:
-            table = getattr(self, name)
             atomic_write_bytes(folder / band_file(name),
-                               lambda tmp, table=table: table.to_parquet(tmp, index=False))
+                               functools.partial(_to_parquet, getattr(self, name)))
         return folder
 
     @classmethod
