@@ -194,7 +194,7 @@ class OutputLayout:
                 vals.append(float(pred.scalars[name]))
         return np.array(vals + slopes, dtype=float)
 
-    def vector_from_json(self, text: str) -> np.ndarray | None:
+    def vector_from_json(self, text: str | None) -> np.ndarray | None:
         """The output vector of a trial-log ``predictions`` cell (JSON), or ``None``
         when it cannot be rebuilt (a failed trial, a log without predictions)."""
         import json

@@ -299,7 +299,7 @@ class TrialLog:
                 f"trial log {str(self.path)!r} has no columns for parameters {absent}; it was "
                 "written by a search over other parameters. Use a new log path."
             )
-        self._rows = df.to_dict(orient="records")
+        self._rows = [{str(k): v for k, v in r.items()} for r in df.to_dict(orient="records")]
         if self.journal.exists() and self.journal.stat().st_size:
             self.compact()  # fold the journal in, so the next append starts it afresh
         return df

@@ -164,7 +164,7 @@ class PosteriorBands:
             If a table is missing.
         """
         folder = Path(folder)
-        tables = {}
+        tables: dict[str, Any] = {}
         for name in BAND_TABLES:
             path = folder / band_file(name)
             if not path.exists():
@@ -464,6 +464,7 @@ def emulated_bands(
     if getattr(target, "kind", "") != "emulator":
         return pd.DataFrame()
     levels_t = check_levels(levels, "levels")
+    assert target is not None  # kind "emulator" was checked above
     layout = target.layout
     nv = layout.n_values
     rng = np.random.default_rng(seed)

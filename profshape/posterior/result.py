@@ -203,5 +203,5 @@ def _jsonable(obj: Any) -> Any:
     if isinstance(obj, int | np.integer):
         return int(obj)
     if isinstance(obj, float | np.floating):
-        return _json_float(obj)
+        return _json_float(float(obj))
     return obj

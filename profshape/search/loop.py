@@ -203,6 +203,8 @@ class _Runner:
     def _replace(self) -> None:
         """Shut the broken pool down (so all its futures are settled) and start a new one."""
         # no cancel_futures: the broken pool's manager thread fails every task itself
+        if self.renew is None:
+            raise RuntimeError("the worker pool broke and this campaign has no way to renew it")
         self.executor.shutdown(wait=True)
         self.executor = self.renew()
         self.broken = None
@@ -379,6 +381,7 @@ def run_search(
             return local_executor(settings.workers)
 
         executor = renew()
+    assert executor is not None
     runner = _Runner(problem, executor, renew)
     done_best = search.best()
     progress = SearchProgress(settings.budget, settings.progress, initial=search.n_finished,

@@ -64,7 +64,7 @@ def _best_from_log(trials: pd.DataFrame, names: tuple[str, ...]) -> tuple[dict[s
     ok = trials[trials["status"] == "ok"]
     if ok.empty:
         return None, math.inf, None
-    row = ok.loc[ok["reduced_chi2"].idxmin()]
+    row = ok.iloc[int(ok["reduced_chi2"].to_numpy().argmin())]
     return ({n: float(row[n]) for n in names}, float(row["reduced_chi2"]), int(row["trial"]))
 
 
