@@ -57,8 +57,8 @@ TIME_STEP_COLLAPSE = 5
 VELOCITY_RUNAWAY = 6
 
 # Field indices of the per-cell accumulators acc[chunk, field, cell].
-A_NE, A_GI, A_NN, A_TE, A_PHI, A_EF, A_NU, A_FN, A_SRC, A_SEE, A_NI_END = range(11)
-N_CELL_FIELDS = 11
+A_NE, A_GI, A_NN, A_TE, A_PHI, A_EF, A_NU, A_FN, A_SRC, A_SEE, A_NI_END, A_EI = range(12)
+N_CELL_FIELDS = 12
 # Indices of the global accumulators acc_g[chunk, k].
 (G_CUR, G_CUR2, G_ION_OUT, G_MOM_OUT, G_NEU_OUT, G_IN, G_T, G_ION_ANODE, G_ENERGY_OUT,
  G_IONIZATION, G_WALL, G_INGEST, G_SHEATH, G_CUR_MIN, G_CUR_MAX, G_CX_MOM, G_DRAG_MOM,
@@ -96,9 +96,16 @@ def nu_ei_nrl(n_m3, te_eV):
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _heavy_rhs(i, nn, nb, ni, gi, ne, ef, kiz, nu_w, k_in, u_n, e_over_m, fn, fg, fnn, fnb,
-               inv_dz):  # fmt: skip
-    """Right-hand sides (dn_n, dn_b, dn_i, dg_i)/dt of cell i, explicit part."""
+def _heavy_rhs(i, nn, nb, ni, gi, qi, ne, ef, kiz, nu_w, k_in, u_n, e_over_m, fn, fg, fq, fnn,
+               fnb, inv_dz):  # fmt: skip
+    """Right-hand sides (dn_n, dn_b, dn_i, dg_i, dq_i)/dt of cell i, explicit part.
+
+    q_i is the ion kinetic-energy density over M, summed over all ions (directed energy
+    plus the spread of ions born at different potentials); ions are born at the neutral
+    drift speed, lost to the walls with their mean energy, and replaced by ions at the
+    neutral speed by the ion-neutral collisions (the charge-exchange picture, applied to
+    the elastic part too).
+    """
     rw = nu_w[i] * ni[i]  # ions lost to the walls = neutrals re-emitted there
     rate = ne[i] * kiz[i]
     dnn = -(fnn[i + 1] - fnn[i]) * inv_dz + rw - rate * nn[i]
@@ -107,50 +114,70 @@ def _heavy_rhs(i, nn, nb, ni, gi, ne, ef, kiz, nu_w, k_in, u_n, e_over_m, fn, fg
     dni = -(fn[i + 1] - fn[i]) * inv_dz + siz - rw
     dgi = -(fg[i + 1] - fg[i]) * inv_dz + e_over_m * ne[i] * ef[i] + siz * u_n
     dgi += -nu_w[i] * gi[i] - k_in[i] * (gi[i] - ni[i] * u_n)
-    return dnn, dnb, dni, dgi
+    dqi = -(fq[i + 1] - fq[i]) * inv_dz + e_over_m * ef[i] * gi[i] + 0.5 * siz * u_n * u_n
+    dqi += -nu_w[i] * qi[i] - k_in[i] * (qi[i] - 0.5 * ni[i] * u_n * u_n)
+    return dnn, dnb, dni, dgi, dqi
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _ion_fluxes(ni, gi, cs, muscl, fn, fg, uw, sn, su, presheath):
-    """Rusanov face fluxes of ion number and momentum/M (fills fn, fg; uw, sn, su work)."""
+def _ion_fluxes(ni, gi, qi, cs, muscl, fn, fg, fq, uw, ew, sn, su, se, presheath):
+    """Rusanov face fluxes of ion number, momentum/M and energy/M (fills fn, fg, fq).
+
+    Density, velocity and the mean energy per ion e_i = q_i / n (over M) are
+    reconstructed (van Leer). The energy is carried at the fluid velocity and does
+    not act back on the momentum (no ion pressure). uw, ew, sn, su, se: work arrays.
+    """
     n = ni.shape[0]
     for i in range(n):
         uw[i] = gi[i] / ni[i]
+        ew[i] = qi[i] / ni[i]
     sn[0] = 0.0
     su[0] = 0.0
+    se[0] = 0.0
     sn[n - 1] = 0.0
     su[n - 1] = 0.0
+    se[n - 1] = 0.0
     for i in range(1, n - 1):
         if muscl:
             sn[i] = 0.5 * _limited_slope(ni[i] - ni[i - 1], ni[i + 1] - ni[i])
             su[i] = 0.5 * _limited_slope(uw[i] - uw[i - 1], uw[i + 1] - uw[i])
+            se[i] = 0.5 * _limited_slope(ew[i] - ew[i - 1], ew[i + 1] - ew[i])
         else:
             sn[i] = 0.0
             su[i] = 0.0
+            se[i] = 0.0
     u0 = uw[0]
     if u0 > -cs[0]:  # subsonic towards the anode: Bohm flux at the pre-sheath density
         fn[0] = -presheath * ni[0] * cs[0]
         fg[0] = fn[0] * (-cs[0])
+        # ions leave with their mean energy or the Bohm energy, whichever is larger
+        fq[0] = fn[0] * max(ew[0], 0.5 * cs[0] * cs[0])
     else:
         fn[0] = gi[0]
         fg[0] = gi[0] * u0
+        fq[0] = gi[0] * ew[0]
     for f in range(1, n):
         l = f - 1
         nl = ni[l] + sn[l]
         ul = uw[l] + su[l]
+        el = ew[l] + se[l]
         nr = ni[f] - sn[f]
         ur = uw[f] - su[f]
+        er = ew[f] - se[f]
         a = max(abs(ul) + cs[l], abs(ur) + cs[f])
         gl = nl * ul
         gr = nr * ur
         fn[f] = 0.5 * (gl + gr) - 0.5 * a * (nr - nl)
         fg[f] = 0.5 * (gl * ul + gr * ur) - 0.5 * a * (gr - gl)
+        fq[f] = 0.5 * (gl * el + gr * er) - 0.5 * a * (nr * er - nl * el)
     if gi[n - 1] > 0.0:
         fn[n] = gi[n - 1]
         fg[n] = gi[n - 1] * uw[n - 1]
+        fq[n] = gi[n - 1] * ew[n - 1]
     else:  # never let the cathode plane feed ions in
         fn[n] = 0.0
         fg[n] = 0.0
+        fq[n] = 0.0
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
@@ -174,15 +201,25 @@ def _neutral_fluxes(nn, nb, u_n, u_b, fnn, fnb, muscl):
         fnb[f] = -u_b * v
 
 
+@njit(cache=True, inline="always", fastmath=_FM)
+def _ion_energy_floor(ni, gi, qi, i, warm):
+    """Keep q_i >= 0; without the energy equation (warm False) q_i = n u^2 / 2."""
+    if not warm:
+        qi[i] = 0.5 * gi[i] * gi[i] / ni[i]
+    elif qi[i] < 0.0:
+        qi[i] = 0.0
+
+
 @njit(cache=True, fastmath=_FM, nogil=True)
 def march(
-    nn, nb, ni, gi, te, sheath,  # state (modified in place) [m^-3 x3, m^-2 s^-1, eV, V]
+    nn, nb, ni, gi, qi, te, sheath,  # state (modified in place) [m^-3 x3, m^-2 s^-1,
+    # m^-1 s^-2 (ion energy density / M), eV, V]
     dz, area, ion_mass, u_n, u_b, gamma_in, gamma_bg, v_d, te_cath,
     omega_ce, nu_anom, wall_frac, wall_rate_factor,
     w_inv_tab, w_pow_tab, w_slope_tab,
     rate_t0, rate_inv_dt, k_iz_tab, k_loss_tab, k_en_tab,
     cex_a, cex_b, k_elastic, v_n_thermal,
-    n_floor, te_floor, te_ceiling, cfl, dt_max, muscl, rk2, u_guard,
+    n_floor, te_floor, te_ceiling, cfl, dt_max, muscl, rk2, warm, u_guard,
     fall_min, fall_max, fall_time_s,
     t_start, t_end, sample_dt, chunk_dt,
     acc,  # (n_chunks, N_CELL_FIELDS, N) time-weighted sums per chunk, modified in place
@@ -222,6 +259,10 @@ def march(
     ef = np.empty(n)
     fn = np.empty(n + 1)  # ion number flux at faces
     fg = np.empty(n + 1)  # ion momentum flux / M at faces
+    fq = np.empty(n + 1)  # ion energy flux / M at faces
+    qi1 = np.empty(n)
+    ew = np.empty(n)
+    se = np.empty(n)
     fnn = np.empty(n + 1)  # anode-gas neutral flux at faces
     fnb = np.empty(n + 1)  # ingested background-gas flux at faces (negative)
     kap = np.empty(n)
@@ -261,6 +302,7 @@ def march(
             if ni[i] < n_floor:
                 ni[i] = n_floor
                 gi[i] = 0.0
+                qi[i] = 0.0
                 floor_hits += 1
                 hit_kinds[0] += 1
             ne[i] = ni[i]
@@ -367,7 +409,7 @@ def march(
                 break
 
         # ---- 3.-5. heavy particles (SSP-RK2 or forward Euler) -----------
-        _ion_fluxes(ni, gi, cs, muscl, fn, fg, uw, sn, su, 0.6065306597126334)
+        _ion_fluxes(ni, gi, qi, cs, muscl, fn, fg, fq, uw, ew, sn, su, se, 0.6065306597126334)
         for f in range(n + 1):
             fn0_save[f] = fn[f]
         fnb[n] = -gamma_bg
@@ -391,29 +433,35 @@ def march(
             m_wall += nu_w[i] * gi[i]
             m_iz += ne[i] * kiz[i] * (nn[i] + nb[i]) * u_n
         for i in range(n):
-            dnn, dnb, dni, dgi = _heavy_rhs(i, nn, nb, ni, gi, ne, ef, kiz, nu_w, k_in, u_n,
-                                            e_over_m, fn, fg, fnn, fnb, inv_dz)  # fmt: skip
+            dnn, dnb, dni, dgi, dqi = _heavy_rhs(i, nn, nb, ni, gi, qi, ne, ef, kiz, nu_w, k_in,
+                                                 u_n, e_over_m, fn, fg, fq, fnn, fnb,
+                                                 inv_dz)  # fmt: skip
             nn1[i] = max(nn[i] + dt * dnn, 0.0)
             nb1[i] = max(nb[i] + dt * dnb, 0.0)
             ni1[i] = ni[i] + dt * dni
             gi1[i] = gi[i] + dt * dgi
+            qi1[i] = qi[i] + dt * dqi
         if rk2:
             for i in range(n):
                 if ni1[i] < n_floor:
                     ni1[i] = n_floor
                     gi1[i] = 0.0
+                    qi1[i] = 0.0
+                _ion_energy_floor(ni1, gi1, qi1, i, warm)
             # second stage with the stage-1 state; E, rates and T_e frozen over the step
-            _ion_fluxes(ni1, gi1, cs, muscl, fn, fg, uw, sn, su, 0.6065306597126334)
+            _ion_fluxes(ni1, gi1, qi1, cs, muscl, fn, fg, fq, uw, ew, sn, su, se,
+                        0.6065306597126334)  # fmt: skip
             _neutral_fluxes(nn1, nb1, u_n, u_b, fnn, fnb, muscl)
             fnn[0] = gamma_in - fn[0] - fnb[0]
             for i in range(n):
-                dnn, dnb, dni, dgi = _heavy_rhs(i, nn1, nb1, ni1, gi1, ne, ef, kiz, nu_w,
-                                                k_in, u_n, e_over_m, fn, fg, fnn, fnb,
-                                                inv_dz)  # fmt: skip
+                dnn, dnb, dni, dgi, dqi = _heavy_rhs(i, nn1, nb1, ni1, gi1, qi1, ne, ef, kiz,
+                                                     nu_w, k_in, u_n, e_over_m, fn, fg, fq,
+                                                     fnn, fnb, inv_dz)  # fmt: skip
                 nn1[i] = max(0.5 * (nn[i] + nn1[i] + dt * dnn), 0.0)
                 nb1[i] = max(0.5 * (nb[i] + nb1[i] + dt * dnb), 0.0)
                 ni1[i] = 0.5 * (ni[i] + ni1[i] + dt * dni)
                 gi1[i] = 0.5 * (gi[i] + gi1[i] + dt * dgi)
+                qi1[i] = 0.5 * (qi[i] + qi1[i] + dt * dqi)
             # time-averaged face fluxes of the step (the two stages' mean)
             for f in range(n + 1):
                 fn0_save[f] = 0.5 * (fn0_save[f] + fn[f])
@@ -503,6 +551,9 @@ def march(
             nb[i] = nb1[i]
             ni[i] = ni1[i]
             gi[i] = gi1[i]
+            if ni[i] > 0.0:
+                _ion_energy_floor(ni1, gi1, qi1, i, warm)
+            qi[i] = qi1[i]
             if not math.isfinite(ni[i]):
                 return NONFINITE_DENSITY, steps, t, floor_hits, n_samp, i
             if not math.isfinite(gi[i]):
@@ -549,6 +600,7 @@ def march(
             a2[A_FN, i] += dt * fn0_save[i]  # ion flux at the face on the anode side
             a2[A_SRC, i] += dt * src0[i]  # net ion source (ionization - wall loss)
             a2[A_SEE, i] += dt * see[i]
+            a2[A_EI, i] += dt * qi[i] / e_over_m  # ion energy density [eV m^-3]
             ion_total += ne[i] * kiz[i] * (nn[i] + nb[i])
             birth_phi += ne[i] * kiz[i] * (nn[i] + nb[i]) * 0.5 * (phi[i] + phi[i + 1])
             wall_total += nu_w[i] * ne[i]
@@ -560,7 +612,8 @@ def march(
         ag[G_ION_OUT] += dt * fn0_save[n]  # ion flux through the cathode plane
         un = gi[n - 1] * inv_ne[n - 1] if gi[n - 1] > 0.0 else 0.0
         ag[G_MOM_OUT] += dt * fn0_save[n] * un  # ion momentum flux / M out
-        ag[G_ENERGY_OUT] += dt * fn0_save[n] * un * un  # ion energy flux * 2 / M out
+        # ion energy flux * 2 / M out: twice the mean energy per ion (over M) of the last cell
+        ag[G_ENERGY_OUT] += dt * fn0_save[n] * 2.0 * qi[n - 1] / ni[n - 1]
         ag[G_NEU_OUT] += dt * fnn[n]  # neutral flux through the cathode plane
         ag[G_IN] += dt * (gamma_in + gamma_bg)  # heavy-particle flux in
         ag[G_T] += dt

@@ -319,13 +319,14 @@ class _Case:
     def initial_state(self):
         nn, ni, gi, te = _initial_state(self.z, self.device, self.gamma_in, self.u_n, self.v_max)
         nb = np.full(self.n, self.gamma_bg / self.u_b if self.gamma_bg > 0.0 else 0.0)
-        return [nn, nb, ni, gi, te, np.zeros(1)]
+        qi = 0.5 * gi * gi / ni  # cold ions at the start
+        return [nn, nb, ni, gi, qi, te, np.zeros(1)]
 
     def march(self, state, t, t_end, chunk_dt, acc, acc_g, samples):
         sets, r = self.settings, self.rates
-        nn, nb, ni, gi, te, sheath = state
+        nn, nb, ni, gi, qi, te, sheath = state
         return _kernels.march(
-            nn, nb, ni, gi, te, sheath, self.dz, self.area, self.mass, self.u_n, self.u_b,
+            nn, nb, ni, gi, qi, te, sheath, self.dz, self.area, self.mass, self.u_n, self.u_b,
             self.gamma_in, self.gamma_bg, self.v_d, self.device.cathode_electron_temperature_eV,
             self.omega_ce, self.nu_anom, self.wall_frac, self.wall_rate_factor,
             *self.wall_tables,
@@ -333,7 +334,8 @@ class _Case:
             self.cex_a, self.cex_b, self.k_elastic, self.u_n,
             sets.density_floor_m3, sets.electron_temperature_floor_eV,
             sets.electron_temperature_ceiling_eV, sets.cfl, sets.max_time_step_s,
-            sets.ion_scheme_order == 2, sets.time_order == 2, 2.0 * self.v_max + 2e4,
+            sets.ion_scheme_order == 2, sets.time_order == 2, sets.ion_energy_equation == 1,
+            2.0 * self.v_max + 2e4,
             _ANODE_FALL_MIN_TE, self.sheath_log_ratio, _ANODE_FALL_TIME_S,
             t, t_end, sets.sample_interval_s, chunk_dt, acc, acc_g, samples, self.hit_kinds,
         )  # fmt: skip
@@ -383,8 +385,8 @@ def _warm_start(device, point, profile, settings, prop, fine: _Case):
     status = coarse.march(state, 0.0, settings.warmup_time_s, 1.0, acc, acc_g, np.zeros(1))[0]
     if status != _kernels.OK or not all(np.all(np.isfinite(x)) for x in state):
         return None
-    out = [np.ascontiguousarray(np.interp(fine.z, coarse.z, x)) for x in state[:5]]
-    return [*out, state[5].copy()]
+    out = [np.ascontiguousarray(np.interp(fine.z, coarse.z, x)) for x in state[:6]]
+    return [*out, state[6].copy()]
 
 
 def _solve(device, point, profile, settings, prop, z, b, t0) -> SolverResult:
@@ -667,6 +669,7 @@ def _assemble(acc_all, g_all, samples_all, span, plan, converged, reason, device
             "ion_current_A": ion_current,
             "electron_current_A": electron_current,
             "wall_secondary_yield": acc[G.A_SEE] / tw,
+            "ion_mean_energy_eV": acc[G.A_EI] / np.maximum(acc[G.A_NE], 1e-300),
         }
     )
     mdot = point.anode_mass_flow_kg_s

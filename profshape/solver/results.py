@@ -25,6 +25,8 @@ CELL_COLUMNS: dict[str, str] = {
     "ion_current_A": "ion current e A <n u_i> [A]",
     "electron_current_A": "electron current I_d - I_ion (quasi-neutral current continuity) [A]",
     "wall_secondary_yield": "effective secondary-electron yield of the channel walls [-]",
+    "ion_mean_energy_eV": "mean kinetic energy per ion <q_i>/<n> from the ion energy equation "
+    "(directed energy and the spread of ions born at different potentials) [eV]",
 }
 
 #: Global outputs and their units.

@@ -16,6 +16,7 @@ _INT_RANGES = {
     "warmup_coarsening": (1, 8),
     "time_order": (1, 2),
     "min_oscillation_periods": (2, 50),
+    "ion_energy_equation": (0, 1),
 }
 _FLOAT_RANGES = {
     "cfl": (0.05, 0.95),
@@ -126,6 +127,12 @@ class SolverSettings:
         coarse march fails the run starts from scratch on the solver grid.
     warmup_coarsening : int, default=2
         Coarsening factor of the warm-up grid (1 disables the warm-up).
+    ion_energy_equation : {0, 1}, default=1
+        1: the ions' total kinetic energy is carried by its own conservation
+        equation (electric work, birth, wall and ion-neutral losses), so the
+        exit ion energy keeps the energy of ions born at different potentials
+        that a single velocity per cell cannot hold; it does not act back on
+        the momentum. 0: the exit energy from the fluid velocity, M u^2 / 2.
     """
 
     n_cells: int = 160
@@ -154,6 +161,7 @@ class SolverSettings:
     min_oscillation_periods: int = 5
     quiescent_window_fraction: float = 0.25
     energy_bound_tolerance: float = 0.02
+    ion_energy_equation: int = 1
 
     def __post_init__(self) -> None:
         material = self.wall_material
