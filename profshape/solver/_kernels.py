@@ -96,9 +96,13 @@ def nu_ei_nrl(n_m3, te_eV):
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _heavy_rhs(i, nn, nb, ni, gi, qi, ne, ef, kiz, nu_w, k_in, u_n, e_over_m, fn, fg, fq, fnn,
-               fnb, inv_dz):  # fmt: skip
-    """Right-hand sides (dn_n, dn_b, dn_i, dg_i, dq_i)/dt of cell i, explicit part.
+def _heavy_rhs(i, nn, nb, nw, ni, gi, qi, ne, ef, kiz, nu_w, k_in, u_n, u_b, f_up, e_over_m,
+               fn, fg, fq, fnn, fnb, fnw, inv_dz):  # fmt: skip
+    """Right-hand sides (dn_n, dn_b, dn_w, dn_i, dg_i, dq_i)/dt of cell i, explicit part.
+
+    The ions lost to the walls recombine there and are re-emitted as neutrals at the
+    wall temperature, a fraction f_up moving upstream (population n_w), the rest
+    downstream with the anode gas.
 
     q_i is the ion kinetic-energy density over M, summed over all ions (directed energy
     plus the spread of ions born at different potentials); ions are born at the neutral
@@ -108,15 +112,19 @@ def _heavy_rhs(i, nn, nb, ni, gi, qi, ne, ef, kiz, nu_w, k_in, u_n, e_over_m, fn
     """
     rw = nu_w[i] * ni[i]  # ions lost to the walls = neutrals re-emitted there
     rate = ne[i] * kiz[i]
-    dnn = -(fnn[i + 1] - fnn[i]) * inv_dz + rw - rate * nn[i]
+    dnn = -(fnn[i + 1] - fnn[i]) * inv_dz + (1.0 - f_up) * rw - rate * nn[i]
     dnb = -(fnb[i + 1] - fnb[i]) * inv_dz - rate * nb[i]
-    siz = rate * (nn[i] + nb[i])
+    dnw = -(fnw[i + 1] - fnw[i]) * inv_dz + f_up * rw - rate * nw[i]
+    siz = rate * (nn[i] + nb[i] + nw[i])
+    # momentum and energy of the newly born ions: each keeps its neutral's velocity
+    smom = rate * ((nn[i] - nw[i]) * u_n - nb[i] * u_b)
+    sen = 0.5 * rate * ((nn[i] + nw[i]) * u_n * u_n + nb[i] * u_b * u_b)
     dni = -(fn[i + 1] - fn[i]) * inv_dz + siz - rw
-    dgi = -(fg[i + 1] - fg[i]) * inv_dz + e_over_m * ne[i] * ef[i] + siz * u_n
+    dgi = -(fg[i + 1] - fg[i]) * inv_dz + e_over_m * ne[i] * ef[i] + smom
     dgi += -nu_w[i] * gi[i] - k_in[i] * (gi[i] - ni[i] * u_n)
-    dqi = -(fq[i + 1] - fq[i]) * inv_dz + e_over_m * ef[i] * gi[i] + 0.5 * siz * u_n * u_n
+    dqi = -(fq[i + 1] - fq[i]) * inv_dz + e_over_m * ef[i] * gi[i] + sen
     dqi += -nu_w[i] * qi[i] - k_in[i] * (qi[i] - 0.5 * ni[i] * u_n * u_n)
-    return dnn, dnb, dni, dgi, dqi
+    return dnn, dnb, dnw, dni, dgi, dqi
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
@@ -181,11 +189,13 @@ def _ion_fluxes(ni, gi, qi, cs, muscl, fn, fg, fq, uw, ew, sn, su, se, presheath
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _neutral_fluxes(nn, nb, u_n, u_b, fnn, fnb, muscl):
+def _neutral_fluxes(nn, nb, nw, u_n, u_b, fnn, fnb, fnw, muscl):
     """Upwind neutral face fluxes with van Leer-limited linear reconstruction.
 
-    fnn[1..n] (anode gas, moving downstream) and fnb[0..n-1] (ingested gas, moving
-    upstream); the boundary faces fnn[0] and fnb[n] are set by the caller.
+    fnn[1..n] (anode gas, moving downstream), fnb[0..n-1] (ingested gas, moving
+    upstream) and fnw[0..n-1] (gas re-emitted by the walls moving upstream at u_n,
+    none entering through the cathode plane); the boundary faces fnn[0] and fnb[n]
+    are set by the caller.
     """
     n = nn.shape[0]
     for f in range(1, n + 1):
@@ -199,6 +209,11 @@ def _neutral_fluxes(nn, nb, u_n, u_b, fnn, fnb, muscl):
         if muscl and 1 <= f <= n - 2:
             v -= 0.5 * _limited_slope(nb[f] - nb[f - 1], nb[f + 1] - nb[f])
         fnb[f] = -u_b * v
+        v = nw[f]
+        if muscl and 1 <= f <= n - 2:
+            v -= 0.5 * _limited_slope(nw[f] - nw[f - 1], nw[f + 1] - nw[f])
+        fnw[f] = -u_n * v
+    fnw[n] = 0.0
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
@@ -212,9 +227,9 @@ def _ion_energy_floor(ni, gi, qi, i, warm):
 
 @njit(cache=True, fastmath=_FM, nogil=True)
 def march(
-    nn, nb, ni, gi, qi, te, sheath,  # state (modified in place) [m^-3 x3, m^-2 s^-1,
+    nn, nb, nw, ni, gi, qi, te, sheath,  # state (modified in place) [m^-3 x4, m^-2 s^-1,
     # m^-1 s^-2 (ion energy density / M), eV, V]
-    dz, area, ion_mass, u_n, u_b, gamma_in, gamma_bg, v_d, te_cath,
+    dz, area, ion_mass, u_n, u_b, f_up, gamma_in, gamma_bg, v_d, te_cath,
     omega_ce, nu_anom, wall_frac, wall_rate_factor,
     w_inv_tab, w_pow_tab, w_slope_tab,
     rate_t0, rate_inv_dt, k_iz_tab, k_loss_tab, k_en_tab,
@@ -265,6 +280,8 @@ def march(
     se = np.empty(n)
     fnn = np.empty(n + 1)  # anode-gas neutral flux at faces
     fnb = np.empty(n + 1)  # ingested background-gas flux at faces (negative)
+    fnw = np.empty(n + 1)  # upstream flux of the gas re-emitted by the walls (negative)
+    nw1 = np.empty(n)
     kap = np.empty(n)
     heat = np.empty(n)
     lossc = np.empty(n)
@@ -340,7 +357,7 @@ def march(
             see[i] = 1.0 - 1.0 / inv1m
             wloss[i] = cw * wpow / tt  # per electron per second / T_e
             wslope[i] = cw * wsl if wsl > 0.0 else 0.0
-            nu = (nn[i] + nb[i]) * ken + nu_ei + nuw * inv1m + nu_anom[i]
+            nu = (nn[i] + nb[i] + nw[i]) * ken + nu_ei + nuw * inv1m + nu_anom[i]
             nu_tot[i] = nu
             om = omega_ce[i]
             # mu = (e/m) / nu / (1 + (om/nu)^2) = (e/m) nu / (nu^2 + om^2)
@@ -358,8 +375,8 @@ def march(
                 sig_cx = cex_a - cex_b * math.log10(e_rel)
                 if sig_cx < 0.0:
                     sig_cx = 0.0
-                k_cx[i] = (nn[i] + nb[i]) * sig_cx * g
-                k_in[i] = k_cx[i] + (nn[i] + nb[i]) * k_elastic
+                k_cx[i] = (nn[i] + nb[i] + nw[i]) * sig_cx * g
+                k_in[i] = k_cx[i] + (nn[i] + nb[i] + nw[i]) * k_elastic
         if amax > u_guard:
             k_bad = 0
             for i in range(n):
@@ -413,9 +430,10 @@ def march(
         for f in range(n + 1):
             fn0_save[f] = fn[f]
         fnb[n] = -gamma_bg
-        _neutral_fluxes(nn, nb, u_n, u_b, fnn, fnb, muscl)
-        # anode: injected flow + ions recombined on the anode + ingested gas re-emitted
-        fnn[0] = gamma_in - fn[0] - fnb[0]
+        _neutral_fluxes(nn, nb, nw, u_n, u_b, fnn, fnb, fnw, muscl)
+        # anode: injected flow + ions recombined on the anode + ingested gas and gas from
+        # the walls arriving there, all re-emitted downstream
+        fnn[0] = gamma_in - fn[0] - fnb[0] - fnw[0]
         # momentum bookkeeping of the step (per unit area / M; first-stage values, the
         # stages differ by O(dt) only): charge exchange and all ion-neutral drag, wall
         # loss, ionization source
@@ -425,19 +443,20 @@ def march(
         m_iz = 0.0
         fg0 = fg[0]
         for i in range(n):
-            src0[i] = ne[i] * kiz[i] * (nn[i] + nb[i]) - nu_w[i] * ni[i]
+            src0[i] = ne[i] * kiz[i] * (nn[i] + nb[i] + nw[i]) - nu_w[i] * ni[i]
             rel = gi[i] - ni[i] * u_n
             if rel > 0.0:  # fast neutrals moving downstream leave with the exhaust
                 m_cx += k_cx[i] * rel
             m_drag += k_in[i] * rel
             m_wall += nu_w[i] * gi[i]
-            m_iz += ne[i] * kiz[i] * (nn[i] + nb[i]) * u_n
+            m_iz += ne[i] * kiz[i] * ((nn[i] - nw[i]) * u_n - nb[i] * u_b)
         for i in range(n):
-            dnn, dnb, dni, dgi, dqi = _heavy_rhs(i, nn, nb, ni, gi, qi, ne, ef, kiz, nu_w, k_in,
-                                                 u_n, e_over_m, fn, fg, fq, fnn, fnb,
-                                                 inv_dz)  # fmt: skip
+            dnn, dnb, dnw, dni, dgi, dqi = _heavy_rhs(
+                i, nn, nb, nw, ni, gi, qi, ne, ef, kiz, nu_w, k_in, u_n, u_b, f_up, e_over_m,
+                fn, fg, fq, fnn, fnb, fnw, inv_dz)  # fmt: skip
             nn1[i] = max(nn[i] + dt * dnn, 0.0)
             nb1[i] = max(nb[i] + dt * dnb, 0.0)
+            nw1[i] = max(nw[i] + dt * dnw, 0.0)
             ni1[i] = ni[i] + dt * dni
             gi1[i] = gi[i] + dt * dgi
             qi1[i] = qi[i] + dt * dqi
@@ -451,14 +470,15 @@ def march(
             # second stage with the stage-1 state; E, rates and T_e frozen over the step
             _ion_fluxes(ni1, gi1, qi1, cs, muscl, fn, fg, fq, uw, ew, sn, su, se,
                         0.6065306597126334)  # fmt: skip
-            _neutral_fluxes(nn1, nb1, u_n, u_b, fnn, fnb, muscl)
-            fnn[0] = gamma_in - fn[0] - fnb[0]
+            _neutral_fluxes(nn1, nb1, nw1, u_n, u_b, fnn, fnb, fnw, muscl)
+            fnn[0] = gamma_in - fn[0] - fnb[0] - fnw[0]
             for i in range(n):
-                dnn, dnb, dni, dgi, dqi = _heavy_rhs(i, nn1, nb1, ni1, gi1, qi1, ne, ef, kiz,
-                                                     nu_w, k_in, u_n, e_over_m, fn, fg, fq,
-                                                     fnn, fnb, inv_dz)  # fmt: skip
+                dnn, dnb, dnw, dni, dgi, dqi = _heavy_rhs(
+                    i, nn1, nb1, nw1, ni1, gi1, qi1, ne, ef, kiz, nu_w, k_in, u_n, u_b, f_up,
+                    e_over_m, fn, fg, fq, fnn, fnb, fnw, inv_dz)  # fmt: skip
                 nn1[i] = max(0.5 * (nn[i] + nn1[i] + dt * dnn), 0.0)
                 nb1[i] = max(0.5 * (nb[i] + nb1[i] + dt * dnb), 0.0)
+                nw1[i] = max(0.5 * (nw[i] + nw1[i] + dt * dnw), 0.0)
                 ni1[i] = 0.5 * (ni[i] + ni1[i] + dt * dni)
                 gi1[i] = 0.5 * (gi[i] + gi1[i] + dt * dgi)
                 qi1[i] = 0.5 * (qi[i] + qi1[i] + dt * dqi)
@@ -473,7 +493,7 @@ def march(
             inv_t = 1.0 / te[i]
             # losses: inelastic (ionization + excitation) and wall (sheath) losses
             # wall power W(T) linearised about the old T: W0 + W'(T - T0)
-            lossc[i] = ne[i] * (nn[i] + nb[i]) * kloss[i] * inv_t + ne[i] * wslope[i]
+            lossc[i] = ne[i] * (nn[i] + nb[i] + nw[i]) * kloss[i] * inv_t + ne[i] * wslope[i]
             h += ne[i] * (wslope[i] - wloss[i]) * te[i]
             if h < 0.0:
                 lossc[i] += -h * inv_t
@@ -549,6 +569,7 @@ def march(
                 hit_kinds[2] += 1
             nn[i] = nn1[i]
             nb[i] = nb1[i]
+            nw[i] = nw1[i]
             ni[i] = ni1[i]
             gi[i] = gi1[i]
             if ni[i] > 0.0:
@@ -592,7 +613,7 @@ def march(
         for i in range(n):
             a2[A_NE, i] += dt * ne[i]
             a2[A_GI, i] += dt * gi[i]
-            a2[A_NN, i] += dt * (nn[i] + nb[i])
+            a2[A_NN, i] += dt * (nn[i] + nb[i] + nw[i])
             a2[A_TE, i] += dt * te[i]
             a2[A_PHI, i] += dt * 0.5 * (phi[i] + phi[i + 1])
             a2[A_EF, i] += dt * ef[i]
@@ -601,8 +622,8 @@ def march(
             a2[A_SRC, i] += dt * src0[i]  # net ion source (ionization - wall loss)
             a2[A_SEE, i] += dt * see[i]
             a2[A_EI, i] += dt * qi[i] / e_over_m  # ion energy density [eV m^-3]
-            ion_total += ne[i] * kiz[i] * (nn[i] + nb[i])
-            birth_phi += ne[i] * kiz[i] * (nn[i] + nb[i]) * 0.5 * (phi[i] + phi[i + 1])
+            ion_total += ne[i] * kiz[i] * (nn[i] + nb[i] + nw[i])
+            birth_phi += ne[i] * kiz[i] * (nn[i] + nb[i] + nw[i]) * 0.5 * (phi[i] + phi[i + 1])
             wall_total += nu_w[i] * ne[i]
             eforce += ne[i] * ef[i]
         cur = _E * area * jflux
