@@ -21,12 +21,12 @@ half-Maxwellian)::
 
 The ions recombined on the walls are re-emitted diffusely (cosine law) at the
 wall temperature, whose axial velocity distribution is symmetric: half move
-upstream, half downstream. n_n is fed at the anode by the mass flow, the ions
-recombining on the anode and the ingested and wall gas arriving there; n_b
-enters through the cathode plane with the free-molecular (Hertz-Knudsen)
-flux n_bg sqrt(k T_bg / (2 pi M)) per unit area, n_bg = p_bg / (k T_bg) from
-``OperatingPoint.background_pressure_Pa`` and ``background_temperature_K``
-(0 Pa = space).
+upstream, half downstream (``wall_reemission_upstream_fraction``). n_n is
+fed at the anode by the mass flow, the ions recombining on the anode and the
+ingested and wall gas arriving there; n_b enters through the cathode plane
+with the free-molecular (Hertz-Knudsen) flux n_bg sqrt(k T_bg / (2 pi M)) per
+unit area, n_bg = p_bg / (k T_bg) from ``OperatingPoint.background_pressure_Pa``
+and ``background_temperature_K`` (0 Pa = space).
 
 Ions (singly charged, cold, density n_i = n_e, flux n_i u_i, kinetic-energy
 density M q_i; each new ion keeps its neutral's velocity u_k, S_k its source)::
@@ -342,7 +342,7 @@ class _Case:
         nn, nb, nw, ni, gi, qi, te, sheath = state
         return _kernels.march(
             nn, nb, nw, ni, gi, qi, te, sheath, self.dz, self.area, self.mass, self.u_n,
-            self.u_b, _WALL_UPSTREAM_FRACTION * (sets.wall_loss_scale > 0.0),
+            self.u_b, sets.wall_reemission_upstream_fraction,
             self.gamma_in, self.gamma_bg, self.v_d, self.device.cathode_electron_temperature_eV,
             self.omega_ce, self.nu_anom, self.wall_frac, self.wall_rate_factor,
             *self.wall_tables,
@@ -357,12 +357,6 @@ class _Case:
         )  # fmt: skip
 
 
-#: Fraction of the neutrals re-emitted by the channel walls (recombined ions) that move
-#: upstream. Emission from a wall parallel to z at the wall temperature (diffuse,
-#: cosine law) has a symmetric axial velocity distribution: half go each way (kinetic
-#: theory, textbook; e.g. Goebel and Katz 2008, ch. 5 on neutral flow), both halves at the
-#: drift speed u_n of the 1-D neutral streams.
-_WALL_UPSTREAM_FRACTION = 0.5
 #: Most negative anode fall (electron-attracting sheath) in units of T_e at the anode;
 #: beyond about one T_e the electron flux saturates (common practice, no source).
 _ANODE_FALL_MIN_TE = -1.0

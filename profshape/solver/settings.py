@@ -38,6 +38,7 @@ _FLOAT_RANGES = {
     "ion_neutral_collision_scale": (0.0, 10.0),
     "quiescent_window_fraction": (0.05, 1.0),
     "energy_bound_tolerance": (0.0, 0.2),
+    "wall_reemission_upstream_fraction": (0.0, 1.0),
 }
 #: Wall materials with a secondary-electron yield fit (see profshape.solver.walls).
 _WALL_MATERIALS = ("boron_nitride", "alumina", "borosil", "constant")
@@ -127,6 +128,11 @@ class SolverSettings:
         coarse march fails the run starts from scratch on the solver grid.
     warmup_coarsening : int, default=2
         Coarsening factor of the warm-up grid (1 disables the warm-up).
+    wall_reemission_upstream_fraction : float, default=0.5
+        Fraction of the neutrals re-emitted by the channel walls (recombined
+        ions) that move upstream; diffuse (cosine-law) emission at the wall
+        temperature has a symmetric axial velocity distribution, hence 0.5
+        (kinetic theory, textbook). 0 sends all of them downstream.
     ion_energy_equation : {0, 1}, default=1
         1: the ions' total kinetic energy is carried by its own conservation
         equation (electric work, birth, wall and ion-neutral losses), so the
@@ -162,6 +168,7 @@ class SolverSettings:
     quiescent_window_fraction: float = 0.25
     energy_bound_tolerance: float = 0.02
     ion_energy_equation: int = 1
+    wall_reemission_upstream_fraction: float = 0.5
 
     def __post_init__(self) -> None:
         material = self.wall_material
