@@ -121,11 +121,14 @@ class SolverSettings:
         Spatial order of the ion fluxes: 1 = first-order Rusanov, 2 = MUSCL
         reconstruction of density and velocity (van Leer limiter; also used
         for the neutrals).
-    warmup_time_s : float, default=2.0e-4
+    warmup_time_s : float, default=4.0e-4
         Start-up transient marched first on a grid ``warmup_coarsening``
         times coarser (cheaper), then interpolated onto the solver grid; the
         convergence test runs on the solver grid only. 0 disables it; if the
         coarse march fails the run starts from scratch on the solver grid.
+        The default spans a few neutral transit times (the gas re-emitted
+        upstream by the walls recirculates through the anode, about 100 us
+        per pass on the demo device).
     warmup_coarsening : int, default=2
         Coarsening factor of the warm-up grid (1 disables the warm-up).
     wall_reemission_upstream_fraction : float, default=0.5
@@ -158,7 +161,7 @@ class SolverSettings:
     wall_loss_scale: float = 1.0
     max_floor_fraction: float = 0.02
     ion_scheme_order: int = 2
-    warmup_time_s: float = 2.0e-4
+    warmup_time_s: float = 4.0e-4
     warmup_coarsening: int = 2
     wall_material: str = "boron_nitride"
     wall_transition_gaps: float = 0.25
