@@ -60,8 +60,8 @@ TIME_STEP_COLLAPSE = 5
 VELOCITY_RUNAWAY = 6
 
 # Field indices of the per-cell accumulators acc[chunk, field, cell].
-A_NE, A_GI, A_NN, A_TE, A_PHI, A_EF, A_NU, A_FN, A_SRC, A_SEE, A_NI_END = range(11)
-N_CELL_FIELDS = 11
+A_NE, A_GI, A_NN, A_TE, A_PHI, A_EF, A_NU, A_FN, A_SRC, A_SEE, A_NI_END, A_EI = range(12)
+N_CELL_FIELDS = 12
 # Indices of the global accumulators acc_g[chunk, k].
 (G_CUR, G_CUR2, G_ION_OUT, G_MOM_OUT, G_NEU_OUT, G_IN, G_T, G_ION_ANODE, G_ENERGY_OUT,
  G_IONIZATION, G_WALL, G_INGEST, G_SHEATH, G_CUR_MIN, G_CUR_MAX, G_CX_MOM, G_DRAG_MOM,
@@ -99,69 +99,106 @@ def nu_ei_nrl(n_m3, te_eV):
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _heavy_rhs(i, nn, nb, ni, gi, ne, ef, kiz, nu_w, k_in, u_n, e_over_m, fn, fg, fnn, fnb,
-               inv_dz):  # fmt: skip
-    """Right-hand sides (dn_n, dn_b, dn_i, dg_i)/dt of cell i, explicit part."""
+def _heavy_rhs(i, nn, nb, nw, ni, gi, qi, ne, ef, kiz, nu_w, k_in, u_n, u_b, f_up, e_over_m,
+               fn, fg, fq, fnn, fnb, fnw, inv_dz):  # fmt: skip
+    """Right-hand sides (dn_n, dn_b, dn_w, dn_i, dg_i, dq_i)/dt of cell i, explicit part.
+
+    The ions lost to the walls recombine there and are re-emitted as neutrals at the
+    wall temperature, a fraction f_up moving upstream (population n_w), the rest
+    downstream with the anode gas.
+
+    q_i is the ion kinetic-energy density over M, summed over all ions (directed energy
+    plus the spread of ions born at different potentials); ions are born at the neutral
+    drift speed, lost to the walls with their mean energy, and replaced by ions at the
+    neutral speed by the ion-neutral collisions (the charge-exchange picture, applied to
+    the elastic part too).
+    """
     rw = nu_w[i] * ni[i]  # ions lost to the walls = neutrals re-emitted there
     rate = ne[i] * kiz[i]
-    dnn = -(fnn[i + 1] - fnn[i]) * inv_dz + rw - rate * nn[i]
+    dnn = -(fnn[i + 1] - fnn[i]) * inv_dz + (1.0 - f_up) * rw - rate * nn[i]
     dnb = -(fnb[i + 1] - fnb[i]) * inv_dz - rate * nb[i]
-    siz = rate * (nn[i] + nb[i])
+    dnw = -(fnw[i + 1] - fnw[i]) * inv_dz + f_up * rw - rate * nw[i]
+    siz = rate * (nn[i] + nb[i] + nw[i])
+    # momentum and energy of the newly born ions: each keeps its neutral's velocity
+    smom = rate * ((nn[i] - nw[i]) * u_n - nb[i] * u_b)
+    sen = 0.5 * rate * ((nn[i] + nw[i]) * u_n * u_n + nb[i] * u_b * u_b)
     dni = -(fn[i + 1] - fn[i]) * inv_dz + siz - rw
-    dgi = -(fg[i + 1] - fg[i]) * inv_dz + e_over_m * ne[i] * ef[i] + siz * u_n
+    dgi = -(fg[i + 1] - fg[i]) * inv_dz + e_over_m * ne[i] * ef[i] + smom
     dgi += -nu_w[i] * gi[i] - k_in[i] * (gi[i] - ni[i] * u_n)
-    return dnn, dnb, dni, dgi
+    dqi = -(fq[i + 1] - fq[i]) * inv_dz + e_over_m * ef[i] * gi[i] + sen
+    dqi += -nu_w[i] * qi[i] - k_in[i] * (qi[i] - 0.5 * ni[i] * u_n * u_n)
+    return dnn, dnb, dnw, dni, dgi, dqi
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _ion_fluxes(ni, gi, cs, muscl, fn, fg, uw, sn, su, presheath):
-    """Rusanov face fluxes of ion number and momentum/M (fills fn, fg; uw, sn, su work)."""
+def _ion_fluxes(ni, gi, qi, cs, muscl, fn, fg, fq, uw, ew, sn, su, se, presheath):
+    """Rusanov face fluxes of ion number, momentum/M and energy/M (fills fn, fg, fq).
+
+    Density, velocity and the mean energy per ion e_i = q_i / n (over M) are
+    reconstructed (van Leer). The energy is carried at the fluid velocity and does
+    not act back on the momentum (no ion pressure). uw, ew, sn, su, se: work arrays.
+    """
     n = ni.shape[0]
     for i in range(n):
         uw[i] = gi[i] / ni[i]
+        ew[i] = qi[i] / ni[i]
     sn[0] = 0.0
     su[0] = 0.0
+    se[0] = 0.0
     sn[n - 1] = 0.0
     su[n - 1] = 0.0
+    se[n - 1] = 0.0
     for i in range(1, n - 1):
         if muscl:
             sn[i] = 0.5 * _limited_slope(ni[i] - ni[i - 1], ni[i + 1] - ni[i])
             su[i] = 0.5 * _limited_slope(uw[i] - uw[i - 1], uw[i + 1] - uw[i])
+            se[i] = 0.5 * _limited_slope(ew[i] - ew[i - 1], ew[i + 1] - ew[i])
         else:
             sn[i] = 0.0
             su[i] = 0.0
+            se[i] = 0.0
     u0 = uw[0]
     if u0 > -cs[0]:  # subsonic towards the anode: Bohm flux at the pre-sheath density
         fn[0] = -presheath * ni[0] * cs[0]
         fg[0] = fn[0] * (-cs[0])
+        # ions leave with their mean energy or the Bohm energy, whichever is larger
+        fq[0] = fn[0] * max(ew[0], 0.5 * cs[0] * cs[0])
     else:
         fn[0] = gi[0]
         fg[0] = gi[0] * u0
+        fq[0] = gi[0] * ew[0]
     for f in range(1, n):
         l = f - 1
         nl = ni[l] + sn[l]
         ul = uw[l] + su[l]
+        el = ew[l] + se[l]
         nr = ni[f] - sn[f]
         ur = uw[f] - su[f]
+        er = ew[f] - se[f]
         a = max(abs(ul) + cs[l], abs(ur) + cs[f])
         gl = nl * ul
         gr = nr * ur
         fn[f] = 0.5 * (gl + gr) - 0.5 * a * (nr - nl)
         fg[f] = 0.5 * (gl * ul + gr * ur) - 0.5 * a * (gr - gl)
+        fq[f] = 0.5 * (gl * el + gr * er) - 0.5 * a * (nr * er - nl * el)
     if gi[n - 1] > 0.0:
         fn[n] = gi[n - 1]
         fg[n] = gi[n - 1] * uw[n - 1]
+        fq[n] = gi[n - 1] * ew[n - 1]
     else:  # never let the cathode plane feed ions in
         fn[n] = 0.0
         fg[n] = 0.0
+        fq[n] = 0.0
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _neutral_fluxes(nn, nb, u_n, u_b, fnn, fnb, muscl):
+def _neutral_fluxes(nn, nb, nw, u_n, u_b, fnn, fnb, fnw, muscl):
     """Upwind neutral face fluxes with van Leer-limited linear reconstruction.
 
-    fnn[1..n] (anode gas, moving downstream) and fnb[0..n-1] (ingested gas, moving
-    upstream); the boundary faces fnn[0] and fnb[n] are set by the caller.
+    fnn[1..n] (anode gas, moving downstream), fnb[0..n-1] (ingested gas, moving
+    upstream) and fnw[0..n-1] (gas re-emitted by the walls moving upstream at u_n,
+    none entering through the cathode plane); the boundary faces fnn[0] and fnb[n]
+    are set by the caller.
     """
     n = nn.shape[0]
     for f in range(1, n + 1):
@@ -175,17 +212,32 @@ def _neutral_fluxes(nn, nb, u_n, u_b, fnn, fnb, muscl):
         if muscl and 1 <= f <= n - 2:
             v -= 0.5 * _limited_slope(nb[f] - nb[f - 1], nb[f + 1] - nb[f])
         fnb[f] = -u_b * v
+        v = nw[f]
+        if muscl and 1 <= f <= n - 2:
+            v -= 0.5 * _limited_slope(nw[f] - nw[f - 1], nw[f + 1] - nw[f])
+        fnw[f] = -u_n * v
+    fnw[n] = 0.0
+
+
+@njit(cache=True, inline="always", fastmath=_FM)
+def _ion_energy_floor(ni, gi, qi, i, warm):
+    """Keep q_i >= 0; without the energy equation (warm False) q_i = n u^2 / 2."""
+    if not warm:
+        qi[i] = 0.5 * gi[i] * gi[i] / ni[i]
+    elif qi[i] < 0.0:
+        qi[i] = 0.0
 
 
 @njit(cache=True, fastmath=_FM, nogil=True)
 def march(
-    nn, nb, ni, gi, te, sheath,  # state (modified in place) [m^-3 x3, m^-2 s^-1, eV, V]
-    dz, area, ion_mass, u_n, u_b, gamma_in, gamma_bg, v_d, te_cath,
+    nn, nb, nw, ni, gi, qi, te, sheath,  # state (modified in place) [m^-3 x4, m^-2 s^-1,
+    # m^-1 s^-2 (ion energy density / M), eV, V]
+    dz, area, ion_mass, u_n, u_b, f_up, gamma_in, gamma_bg, v_d, te_cath,
     omega_ce, nu_anom, wall_frac, wall_rate_factor,
     w_inv_tab, w_pow_tab, w_slope_tab,
     rate_t0, rate_inv_dt, k_iz_tab, k_loss_tab, k_en_tab,
     cex_a, cex_b, k_elastic, v_n_thermal,
-    n_floor, te_floor, te_ceiling, cfl, dt_max, muscl, rk2, u_guard,
+    n_floor, te_floor, te_ceiling, cfl, dt_max, muscl, rk2, warm, u_guard,
     fall_min, fall_max, fall_time_s,
     t_start, t_end, sample_dt, chunk_dt,
     acc,  # (n_chunks, N_CELL_FIELDS, N) time-weighted sums per chunk, modified in place
@@ -225,8 +277,14 @@ def march(
     ef = np.empty(n)
     fn = np.empty(n + 1)  # ion number flux at faces
     fg = np.empty(n + 1)  # ion momentum flux / M at faces
+    fq = np.empty(n + 1)  # ion energy flux / M at faces
+    qi1 = np.empty(n)
+    ew = np.empty(n)
+    se = np.empty(n)
     fnn = np.empty(n + 1)  # anode-gas neutral flux at faces
     fnb = np.empty(n + 1)  # ingested background-gas flux at faces (negative)
+    fnw = np.empty(n + 1)  # upstream flux of the gas re-emitted by the walls (negative)
+    nw1 = np.empty(n)
     kap = np.empty(n)
     heat = np.empty(n)
     lossc = np.empty(n)
@@ -264,6 +322,7 @@ def march(
             if ni[i] < n_floor:
                 ni[i] = n_floor
                 gi[i] = 0.0
+                qi[i] = 0.0
                 floor_hits += 1
                 hit_kinds[0] += 1
             ne[i] = ni[i]
@@ -301,7 +360,7 @@ def march(
             see[i] = 1.0 - 1.0 / inv1m
             wloss[i] = cw * wpow / tt  # per electron per second / T_e
             wslope[i] = cw * wsl if wsl > 0.0 else 0.0
-            nu = (nn[i] + nb[i]) * ken + nu_ei + nuw * inv1m + nu_anom[i]
+            nu = (nn[i] + nb[i] + nw[i]) * ken + nu_ei + nuw * inv1m + nu_anom[i]
             nu_tot[i] = nu
             om = omega_ce[i]
             # mu = (e/m) / nu / (1 + (om/nu)^2) = (e/m) nu / (nu^2 + om^2)
@@ -319,8 +378,8 @@ def march(
                 sig_cx = cex_a - cex_b * math.log10(e_rel)
                 if sig_cx < 0.0:
                     sig_cx = 0.0
-                k_cx[i] = (nn[i] + nb[i]) * sig_cx * g
-                k_in[i] = k_cx[i] + (nn[i] + nb[i]) * k_elastic
+                k_cx[i] = (nn[i] + nb[i] + nw[i]) * sig_cx * g
+                k_in[i] = k_cx[i] + (nn[i] + nb[i] + nw[i]) * k_elastic
         if amax > u_guard:
             k_bad = 0
             for i in range(n):
@@ -370,13 +429,14 @@ def march(
                 break
 
         # ---- 3.-5. heavy particles (SSP-RK2 or forward Euler) -----------
-        _ion_fluxes(ni, gi, cs, muscl, fn, fg, uw, sn, su, 0.6065306597126334)
+        _ion_fluxes(ni, gi, qi, cs, muscl, fn, fg, fq, uw, ew, sn, su, se, 0.6065306597126334)
         for f in range(n + 1):
             fn0_save[f] = fn[f]
         fnb[n] = -gamma_bg
-        _neutral_fluxes(nn, nb, u_n, u_b, fnn, fnb, muscl)
-        # anode: injected flow + ions recombined on the anode + ingested gas re-emitted
-        fnn[0] = gamma_in - fn[0] - fnb[0]
+        _neutral_fluxes(nn, nb, nw, u_n, u_b, fnn, fnb, fnw, muscl)
+        # anode: injected flow + ions recombined on the anode + ingested gas and gas from
+        # the walls arriving there, all re-emitted downstream
+        fnn[0] = gamma_in - fn[0] - fnb[0] - fnw[0]
         # momentum bookkeeping of the step (per unit area / M; first-stage values, the
         # stages differ by O(dt) only): charge exchange and all ion-neutral drag, wall
         # loss, ionization source
@@ -386,37 +446,45 @@ def march(
         m_iz = 0.0
         fg0 = fg[0]
         for i in range(n):
-            src0[i] = ne[i] * kiz[i] * (nn[i] + nb[i]) - nu_w[i] * ni[i]
+            src0[i] = ne[i] * kiz[i] * (nn[i] + nb[i] + nw[i]) - nu_w[i] * ni[i]
             rel = gi[i] - ni[i] * u_n
             if rel > 0.0:  # fast neutrals moving downstream leave with the exhaust
                 m_cx += k_cx[i] * rel
             m_drag += k_in[i] * rel
             m_wall += nu_w[i] * gi[i]
-            m_iz += ne[i] * kiz[i] * (nn[i] + nb[i]) * u_n
+            m_iz += ne[i] * kiz[i] * ((nn[i] - nw[i]) * u_n - nb[i] * u_b)
         for i in range(n):
-            dnn, dnb, dni, dgi = _heavy_rhs(i, nn, nb, ni, gi, ne, ef, kiz, nu_w, k_in, u_n,
-                                            e_over_m, fn, fg, fnn, fnb, inv_dz)  # fmt: skip
+            dnn, dnb, dnw, dni, dgi, dqi = _heavy_rhs(
+                i, nn, nb, nw, ni, gi, qi, ne, ef, kiz, nu_w, k_in, u_n, u_b, f_up, e_over_m,
+                fn, fg, fq, fnn, fnb, fnw, inv_dz)  # fmt: skip
             nn1[i] = max(nn[i] + dt * dnn, 0.0)
             nb1[i] = max(nb[i] + dt * dnb, 0.0)
+            nw1[i] = max(nw[i] + dt * dnw, 0.0)
             ni1[i] = ni[i] + dt * dni
             gi1[i] = gi[i] + dt * dgi
+            qi1[i] = qi[i] + dt * dqi
         if rk2:
             for i in range(n):
                 if ni1[i] < n_floor:
                     ni1[i] = n_floor
                     gi1[i] = 0.0
+                    qi1[i] = 0.0
+                _ion_energy_floor(ni1, gi1, qi1, i, warm)
             # second stage with the stage-1 state; E, rates and T_e frozen over the step
-            _ion_fluxes(ni1, gi1, cs, muscl, fn, fg, uw, sn, su, 0.6065306597126334)
-            _neutral_fluxes(nn1, nb1, u_n, u_b, fnn, fnb, muscl)
-            fnn[0] = gamma_in - fn[0] - fnb[0]
+            _ion_fluxes(ni1, gi1, qi1, cs, muscl, fn, fg, fq, uw, ew, sn, su, se,
+                        0.6065306597126334)  # fmt: skip
+            _neutral_fluxes(nn1, nb1, nw1, u_n, u_b, fnn, fnb, fnw, muscl)
+            fnn[0] = gamma_in - fn[0] - fnb[0] - fnw[0]
             for i in range(n):
-                dnn, dnb, dni, dgi = _heavy_rhs(i, nn1, nb1, ni1, gi1, ne, ef, kiz, nu_w,
-                                                k_in, u_n, e_over_m, fn, fg, fnn, fnb,
-                                                inv_dz)  # fmt: skip
+                dnn, dnb, dnw, dni, dgi, dqi = _heavy_rhs(
+                    i, nn1, nb1, nw1, ni1, gi1, qi1, ne, ef, kiz, nu_w, k_in, u_n, u_b, f_up,
+                    e_over_m, fn, fg, fq, fnn, fnb, fnw, inv_dz)  # fmt: skip
                 nn1[i] = max(0.5 * (nn[i] + nn1[i] + dt * dnn), 0.0)
                 nb1[i] = max(0.5 * (nb[i] + nb1[i] + dt * dnb), 0.0)
+                nw1[i] = max(0.5 * (nw[i] + nw1[i] + dt * dnw), 0.0)
                 ni1[i] = 0.5 * (ni[i] + ni1[i] + dt * dni)
                 gi1[i] = 0.5 * (gi[i] + gi1[i] + dt * dgi)
+                qi1[i] = 0.5 * (qi[i] + qi1[i] + dt * dqi)
             # time-averaged face fluxes of the step (the two stages' mean)
             for f in range(n + 1):
                 fn0_save[f] = 0.5 * (fn0_save[f] + fn[f])
@@ -428,7 +496,7 @@ def march(
             inv_t = 1.0 / te[i]
             # losses: inelastic (ionization + excitation) and wall (sheath) losses
             # wall power W(T) linearised about the old T: W0 + W'(T - T0)
-            lossc[i] = ne[i] * (nn[i] + nb[i]) * kloss[i] * inv_t + ne[i] * wslope[i]
+            lossc[i] = ne[i] * (nn[i] + nb[i] + nw[i]) * kloss[i] * inv_t + ne[i] * wslope[i]
             h += ne[i] * (wslope[i] - wloss[i]) * te[i]
             if h < 0.0:
                 lossc[i] += -h * inv_t
@@ -504,8 +572,12 @@ def march(
                 hit_kinds[2] += 1
             nn[i] = nn1[i]
             nb[i] = nb1[i]
+            nw[i] = nw1[i]
             ni[i] = ni1[i]
             gi[i] = gi1[i]
+            if ni[i] > 0.0:
+                _ion_energy_floor(ni1, gi1, qi1, i, warm)
+            qi[i] = qi1[i]
             if not math.isfinite(ni[i]):
                 return NONFINITE_DENSITY, steps, t, floor_hits, n_samp, i
             if not math.isfinite(gi[i]):
@@ -544,7 +616,7 @@ def march(
         for i in range(n):
             a2[A_NE, i] += dt * ne[i]
             a2[A_GI, i] += dt * gi[i]
-            a2[A_NN, i] += dt * (nn[i] + nb[i])
+            a2[A_NN, i] += dt * (nn[i] + nb[i] + nw[i])
             a2[A_TE, i] += dt * te[i]
             a2[A_PHI, i] += dt * 0.5 * (phi[i] + phi[i + 1])
             a2[A_EF, i] += dt * ef[i]
@@ -552,8 +624,9 @@ def march(
             a2[A_FN, i] += dt * fn0_save[i]  # ion flux at the face on the anode side
             a2[A_SRC, i] += dt * src0[i]  # net ion source (ionization - wall loss)
             a2[A_SEE, i] += dt * see[i]
-            ion_total += ne[i] * kiz[i] * (nn[i] + nb[i])
-            birth_phi += ne[i] * kiz[i] * (nn[i] + nb[i]) * 0.5 * (phi[i] + phi[i + 1])
+            a2[A_EI, i] += dt * qi[i] / e_over_m  # ion energy density [eV m^-3]
+            ion_total += ne[i] * kiz[i] * (nn[i] + nb[i] + nw[i])
+            birth_phi += ne[i] * kiz[i] * (nn[i] + nb[i] + nw[i]) * 0.5 * (phi[i] + phi[i + 1])
             wall_total += nu_w[i] * ne[i]
             eforce += ne[i] * ef[i]
         cur = _E * area * jflux
@@ -563,7 +636,8 @@ def march(
         ag[G_ION_OUT] += dt * fn0_save[n]  # ion flux through the cathode plane
         un = gi[n - 1] * inv_ne[n - 1] if gi[n - 1] > 0.0 else 0.0
         ag[G_MOM_OUT] += dt * fn0_save[n] * un  # ion momentum flux / M out
-        ag[G_ENERGY_OUT] += dt * fn0_save[n] * un * un  # ion energy flux * 2 / M out
+        # ion energy flux * 2 / M out: twice the mean energy per ion (over M) of the last cell
+        ag[G_ENERGY_OUT] += dt * fn0_save[n] * 2.0 * qi[n - 1] / ni[n - 1]
         ag[G_NEU_OUT] += dt * fnn[n]  # neutral flux through the cathode plane
         ag[G_IN] += dt * (gamma_in + gamma_bg)  # heavy-particle flux in
         ag[G_T] += dt

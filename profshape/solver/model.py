@@ -9,24 +9,39 @@ w(z) = (1 - tanh((z - L_ch) / delta)) / 2 with delta =
 ``wall_transition_gaps`` channel gaps h = r_o - r_i (no step).
 
 Neutrals: anode gas n_n drifting downstream at the mean thermal speed at the
-anode temperature u_n = sqrt(8 k T_a / (pi M)), and ingested background gas
-n_b drifting upstream at u_b = sqrt(2 k T_bg / (pi M)) (the mean axial speed of
-the inward half-Maxwellian)::
+anode temperature u_n = sqrt(8 k T_a / (pi M)), gas re-emitted by the walls
+moving upstream n_w at the same speed (the walls taken at the anode
+temperature), and ingested background gas n_b drifting upstream at
+u_b = sqrt(2 k T_bg / (pi M)) (the mean axial speed of the inward
+half-Maxwellian)::
 
-    dn_n/dt + d(n_n u_n)/dz = -n_e n_n k_iz(T_e) + nu_w n_i
+    dn_n/dt + d(n_n u_n)/dz = -n_e n_n k_iz(T_e) + nu_w n_i / 2
+    dn_w/dt - d(n_w u_n)/dz = -n_e n_w k_iz(T_e) + nu_w n_i / 2
     dn_b/dt - d(n_b u_b)/dz = -n_e n_b k_iz(T_e)
 
-n_n is fed at the anode by the mass flow, the ions recombining on the anode
-and the ingested gas arriving there; n_b enters through the cathode plane with
-the free-molecular (Hertz-Knudsen) flux n_bg sqrt(k T_bg / (2 pi M)) per unit
-area, n_bg = p_bg / (k T_bg) from ``OperatingPoint.background_pressure_Pa``
+The ions recombined on the walls are re-emitted diffusely (cosine law) at the
+wall temperature, whose axial velocity distribution is symmetric: half move
+upstream, half downstream (``wall_reemission_upstream_fraction``). n_n is
+fed at the anode by the mass flow, the ions recombining on the anode and the
+ingested and wall gas arriving there; n_b enters through the cathode plane
+with the free-molecular (Hertz-Knudsen) flux n_bg sqrt(k T_bg / (2 pi M)) per
+unit area, n_bg = p_bg / (k T_bg) from ``OperatingPoint.background_pressure_Pa``
 and ``background_temperature_K`` (0 Pa = space).
 
-Ions (singly charged, cold, density n_i = n_e, flux n_i u_i)::
+Ions (singly charged, cold, density n_i = n_e, flux n_i u_i, kinetic-energy
+density M q_i; each new ion keeps its neutral's velocity u_k, S_k its source)::
 
-    dn_i/dt + d(n_i u_i)/dz = n_e (n_n + n_b) k_iz - nu_w n_i
-    d(n_i u_i)/dt + d(n_i u_i^2)/dz = (e/M) n_i E + n_e (n_n + n_b) k_iz u_n
+    dn_i/dt + d(n_i u_i)/dz = n_e (n_n + n_w + n_b) k_iz - nu_w n_i
+    d(n_i u_i)/dt + d(n_i u_i^2)/dz = (e/M) n_i E + sum_k S_k u_k
         - nu_w n_i u_i - nu_in n_i (u_i - u_n)
+    dq_i/dt + d(q_i u_i)/dz = (e/M) n_i u_i E + sum_k S_k u_k^2 / 2
+        - nu_w q_i - nu_in (q_i - n_i u_n^2 / 2)
+
+The energy equation holds the total kinetic energy of ions born at different
+potentials, which a single velocity per cell cannot (momentum sharing would
+destroy the difference); in a steady state its flux is exact whatever the
+closure of the flux, so it gives the exit ion energy M <n u^3> / (2 e <n u>)
+(``ion_energy_equation``); it does not act back on the momentum.
 
 with the wall loss frequency nu_w = w(z) 2 exp(-1/2) c_s / h (Bohm flux at
 the pre-sheath density on both walls, c_s = sqrt(e T_e / M)); the ions lost
@@ -319,13 +334,15 @@ class _Case:
     def initial_state(self):
         nn, ni, gi, te = _initial_state(self.z, self.device, self.gamma_in, self.u_n, self.v_max)
         nb = np.full(self.n, self.gamma_bg / self.u_b if self.gamma_bg > 0.0 else 0.0)
-        return [nn, nb, ni, gi, te, np.zeros(1)]
+        qi = 0.5 * gi * gi / ni  # cold ions at the start
+        return [nn, nb, np.zeros(self.n), ni, gi, qi, te, np.zeros(1)]
 
     def march(self, state, t, t_end, chunk_dt, acc, acc_g, samples):
         sets, r = self.settings, self.rates
-        nn, nb, ni, gi, te, sheath = state
+        nn, nb, nw, ni, gi, qi, te, sheath = state
         return _kernels.march(
-            nn, nb, ni, gi, te, sheath, self.dz, self.area, self.mass, self.u_n, self.u_b,
+            nn, nb, nw, ni, gi, qi, te, sheath, self.dz, self.area, self.mass, self.u_n,
+            self.u_b, sets.wall_reemission_upstream_fraction,
             self.gamma_in, self.gamma_bg, self.v_d, self.device.cathode_electron_temperature_eV,
             self.omega_ce, self.nu_anom, self.wall_frac, self.wall_rate_factor,
             *self.wall_tables,
@@ -333,7 +350,8 @@ class _Case:
             self.cex_a, self.cex_b, self.k_elastic, self.u_n,
             sets.density_floor_m3, sets.electron_temperature_floor_eV,
             sets.electron_temperature_ceiling_eV, sets.cfl, sets.max_time_step_s,
-            sets.ion_scheme_order == 2, sets.time_order == 2, 2.0 * self.v_max + 2e4,
+            sets.ion_scheme_order == 2, sets.time_order == 2, sets.ion_energy_equation == 1,
+            2.0 * self.v_max + 2e4,
             _ANODE_FALL_MIN_TE, self.sheath_log_ratio, _ANODE_FALL_TIME_S,
             t, t_end, sets.sample_interval_s, chunk_dt, acc, acc_g, samples, self.hit_kinds,
         )  # fmt: skip
@@ -383,8 +401,8 @@ def _warm_start(device, point, profile, settings, prop, fine: _Case):
     status = coarse.march(state, 0.0, settings.warmup_time_s, 1.0, acc, acc_g, np.zeros(1))[0]
     if status != _kernels.OK or not all(np.all(np.isfinite(x)) for x in state):
         return None
-    out = [np.ascontiguousarray(np.interp(fine.z, coarse.z, x)) for x in state[:5]]
-    return [*out, state[5].copy()]
+    out = [np.ascontiguousarray(np.interp(fine.z, coarse.z, x)) for x in state[:7]]
+    return [*out, state[7].copy()]
 
 
 def _solve(device, point, profile, settings, prop, z, b, t0) -> SolverResult:
@@ -667,6 +685,7 @@ def _assemble(acc_all, g_all, samples_all, span, plan, converged, reason, device
             "ion_current_A": ion_current,
             "electron_current_A": electron_current,
             "wall_secondary_yield": acc[G.A_SEE] / tw,
+            "ion_mean_energy_eV": acc[G.A_EI] / np.maximum(acc[G.A_NE], 1e-300),
         }
     )
     mdot = point.anode_mass_flow_kg_s

@@ -25,6 +25,8 @@ CELL_COLUMNS: dict[str, str] = {
     "ion_current_A": "ion current e A <n u_i> [A]",
     "electron_current_A": "electron current I_d - I_ion (quasi-neutral current continuity) [A]",
     "wall_secondary_yield": "effective secondary-electron yield of the channel walls [-]",
+    "ion_mean_energy_eV": "mean kinetic energy per ion <q_i>/<n> from the ion energy equation "
+    "(directed energy and the spread of ions born at different potentials) [eV]",
 }
 
 #: Global outputs and their units.
@@ -36,9 +38,8 @@ GLOBAL_DESCRIPTIONS: dict[str, str] = {
     "charge_exchange_thrust_N": "momentum flux of the fast neutrals made by charge exchange "
     "(their share of thrust_N) [N]",
     "ion_birth_potential_V": "ionization-weighted mean plasma potential where the ions are "
-    "born [V]; over V_d, the voltage utilization that collisionless ions kept apart would "
-    "reach without wall losses (the single cold ion fluid shares momentum among ions born "
-    "at different potentials and loses the difference) [-]",
+    "born [V]; over V_d, the voltage utilization that collisionless ions would reach "
+    "without wall and charge-exchange losses [V]",
     "ion_momentum_balance_error": "(ion momentum out - in at the anode) / (electric force + "
     "ionization momentum - wall and ion-neutral momentum losses) - 1, accumulated "
     "separately [-]",
@@ -48,7 +49,8 @@ GLOBAL_DESCRIPTIONS: dict[str, str] = {
     "current_utilization": "ion (beam) current at the cathode plane / discharge current [-]",
     "voltage_utilization": "exit ion energy / discharge voltage [-]",
     "exit_ion_energy_eV": "flux-weighted mean ion kinetic energy at the cathode plane "
-    "M <n u^3>/<n u>/2e [eV]",
+    "M <n u^3>/<n u>/2e [eV], from the ion energy equation (with ion_energy_equation = 0: "
+    "from the fluid velocity, M u^2 / 2e)",
     "effective_exit_velocity_m_s": "ion momentum flux / ion number flux at the cathode plane [m/s]",
     "max_ion_velocity_m_s": "largest time-averaged ion velocity over the cells [m/s]",
     "ion_energy_bound_velocity_m_s": "energy bound sqrt(2 e max(V_d + anode fall, phi_max) / M) "

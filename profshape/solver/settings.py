@@ -50,6 +50,8 @@ CONSTRAINTS: dict[str, list[Constraint | None]] = {
     "ion_neutral_collision_scale": _reals(0.0, 10.0),
     "quiescent_window_fraction": _reals(0.05, 1.0),
     "energy_bound_tolerance": _reals(0.0, 0.2),
+    "ion_energy_equation": _ints(0, 1),
+    "wall_reemission_upstream_fraction": _reals(0.0, 1.0),
 }
 
 
@@ -135,8 +137,26 @@ class SolverSettings:
         times coarser (cheaper), then interpolated onto the solver grid; the
         convergence test runs on the solver grid only. 0 disables it; if the
         coarse march fails the run starts from scratch on the solver grid.
+        With ``wall_reemission_upstream_fraction`` > 0 the gas re-emitted
+        upstream recirculates through the anode (about 100 us per pass on the
+        demo device): use about 4e-4 s then.
     warmup_coarsening : int, default=2
         Coarsening factor of the warm-up grid (1 disables the warm-up).
+    wall_reemission_upstream_fraction : float, default=0.0
+        Fraction of the neutrals re-emitted by the channel walls (recombined
+        ions) that move upstream; diffuse (cosine-law) emission at the wall
+        temperature has a symmetric axial velocity distribution, hence 0.5
+        (kinetic theory, textbook). 0 (the default for now) sends all of them
+        downstream. 0.5 is the physical value; it raises voltage utilization
+        (0.62 -> 0.72 on the demo device at 300 V) but makes the demo's truth
+        oscillate and lengthens the start-up; it becomes the default once the
+        search and the demo are checked with it.
+    ion_energy_equation : {0, 1}, default=1
+        1: the ions' total kinetic energy is carried by its own conservation
+        equation (electric work, birth, wall and ion-neutral losses), so the
+        exit ion energy keeps the energy of ions born at different potentials
+        that a single velocity per cell cannot hold; it does not act back on
+        the momentum. 0: the exit energy from the fluid velocity, M u^2 / 2.
     """
 
     n_cells: int = 160
@@ -165,6 +185,8 @@ class SolverSettings:
     min_oscillation_periods: int = 5
     quiescent_window_fraction: float = 0.25
     energy_bound_tolerance: float = 0.02
+    ion_energy_equation: int = 1
+    wall_reemission_upstream_fraction: float = 0.0
 
     def __post_init__(self) -> None:
         validate_dataclass(self, CONSTRAINTS, owner="solver")
