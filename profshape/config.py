@@ -87,6 +87,7 @@ _SCHEMA: dict[str, Any] = {
         "free_scale_per_point": ((bool,), False, False),
         "scale_bounds_log10": ((list,), False, [-1.0, 1.0]),
         "weights": {"*": None},
+        "discrepancy": {"*": None},  # per observable (profshape.observables)
     },
     "search": {
         "budget": ((int,), False, 40),

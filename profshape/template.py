@@ -124,6 +124,8 @@ use_position_uncertainty = true   # propagate sigma_z_m through the model's slop
 free_scale_per_point = false      # one extra log10 profile scale per operating point
 scale_bounds_log10 = [-1.0, 1.0]  # bounds of those scales
 weights = {}                      # per observable or "label/observable", e.g. { thrust = 1.0 }
+discrepancy = {}                  # per observable: profiles in their SI unit, scalars relative,
+                                  # e.g. { plasma_potential = 5.0, thrust = 0.03 }
 
 # --------------------------------------------------------------------- the search
 [search]
