@@ -551,8 +551,9 @@ class DataSet(Sequence[OperatingPointData]):
                 out = np.flatnonzero((meas.z_m < z_min_m) | (meas.z_m > z_max_m))
                 if out.size:
                     i = out[0]
+                    row = meas.rows[i] if meas.rows is not None else None
                     raise InputDataError(
-                        f"{_where(meas.source, meas.rows[i] if meas.rows else None, 'z_m')}: "
+                        f"{_where(meas.source, row, 'z_m')}: "
                         f"{meas.observable} position {float(meas.z_m[i])!r} m is outside the model "
                         f"domain [{z_min_m!r}, {z_max_m!r}] m; remove it or extend the domain.")
 

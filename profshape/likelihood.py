@@ -43,6 +43,7 @@ import dataclasses
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from typing import NamedTuple
 
 import numpy as np
 
@@ -50,7 +51,8 @@ from .data import DataSet, OperatingPointData
 from .exceptions import InputDataError
 from .forward.base import Prediction
 
-__all__ = ["LikelihoodSettings", "Misfit", "evaluate_misfit", "measured_profiles", "residual_table"]
+__all__ = ["LikelihoodSettings", "MeasuredProfile", "Misfit", "evaluate_misfit",
+           "measured_profiles", "residual_table"]
 
 _LOG_2PI = math.log(2.0 * math.pi)
 
@@ -206,24 +208,34 @@ def _gaussian_terms(residual: np.ndarray, variance: np.ndarray, weight: float) -
     return chi2, loglike
 
 
-def measured_profiles(data: OperatingPointData) -> list[tuple[str, np.ndarray, np.ndarray,
-                                                                 np.ndarray, np.ndarray | None]]:
+class MeasuredProfile(NamedTuple):
+    """One measured profile observable at a point (SI units)."""
+
+    observable: str
+    z_m: np.ndarray
+    value: np.ndarray
+    sigma: np.ndarray
+    sigma_z_m: np.ndarray | None
+
+
+def measured_profiles(data: OperatingPointData) -> list[MeasuredProfile]:
     """``(observable, z_m, value, sigma, sigma_z_m)`` of each measured profile at a point:
     the ion velocity first, then the others in the data's order."""
     out = []
     if data.ion_velocity is not None:
         m = data.ion_velocity
-        out.append(("ion_velocity", m.z_m, m.velocity_m_s, m.sigma_m_s, m.sigma_z_m))
+        out.append(MeasuredProfile("ion_velocity", m.z_m, m.velocity_m_s, m.sigma_m_s,
+                                   m.sigma_z_m))
     for name, p in data.profiles.items():
-        out.append((name, p.z_m, p.value, p.sigma, p.sigma_z_m))
+        out.append(MeasuredProfile(name, p.z_m, p.value, p.sigma, p.sigma_z_m))
     return out
 
 
 def _profile_terms(
-    name: str, z: np.ndarray, value: np.ndarray, sigma: np.ndarray, sigma_z: np.ndarray | None,
-    prediction: Prediction, settings: LikelihoodSettings,
+    meas: MeasuredProfile, prediction: Prediction, settings: LikelihoodSettings,
 ) -> tuple[np.ndarray, np.ndarray] | str:
     """Residuals and effective variances of one profile observable, or a failure reason."""
+    name, z, value, sigma, sigma_z = meas
     model_values = prediction.profile(name)
     if prediction.z_m is None or model_values is None:
         return f"the forward model gave no {name.replace('_', '-')} prediction"
@@ -288,8 +300,9 @@ def evaluate_misfit(
         if not pred.ok:
             return Misfit.failure(f"point {label}: {pred.status}: {pred.reason}", n_data)
         point_chi2 = 0.0
-        for name, *meas in measured_profiles(data):
-            terms = _profile_terms(name, *meas, pred, settings)
+        for meas in measured_profiles(data):
+            name = meas.observable
+            terms = _profile_terms(meas, pred, settings)
             if isinstance(terms, str):
                 return Misfit.failure(f"point {label}: {terms}", n_data)
             c2, ll = _gaussian_terms(*terms, settings.weight(label, name))
@@ -371,12 +384,13 @@ def residual_table(
         pred = predictions.get(label)
         if pred is None or not pred.ok:
             continue
-        for name, *meas in measured_profiles(data):
-            terms = _profile_terms(name, *meas, pred, settings)
+        for meas in measured_profiles(data):
+            name = meas.observable
+            terms = _profile_terms(meas, pred, settings)
             if not isinstance(terms, str):
                 residual, variance = terms
                 w = settings.weight(label, name)
-                for z, y, r, v in zip(meas[0], meas[1], residual, variance, strict=True):
+                for z, y, r, v in zip(meas.z_m, meas.value, residual, variance, strict=True):
                     rows.append({"label": label, "observable": name, "z_m": float(z),
                                  "measured": float(y), "model": float(y - r),
                                  "sigma_effective": float(np.sqrt(v)),

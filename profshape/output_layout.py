@@ -116,7 +116,7 @@ class OutputLayout:
                     sig.append(math.hypot(float(sigmas[i]), disc))  # discrepancy of other profiles
                     wts.append(s.weight(lab, name))
                     is_vel.append(name == "ion_velocity")
-                    sz.append(float(sigz[i]) if use_z else 0.0)
+                    sz.append(float(sigz[i]) if sigz is not None and use_z else 0.0)
             for name, sc in data.scalars.items():
                 values.append(OutputColumn(lab, name, VALUE, math.nan))
                 obs.append(float(sc.value))

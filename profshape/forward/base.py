@@ -97,15 +97,15 @@ class Prediction:
         elif (z is None) != (v is None) and not problems:
             problems.append("z_m and ion_velocity_m_s must be given together")
         profiles: dict[str, np.ndarray] = {}
-        for key, value in dict(self.profiles).items():
-            a, msg = _finite_array(f"profile {key!r}", value)
+        for key, raw in dict(self.profiles).items():
+            arr, msg = _finite_array(f"profile {key!r}", raw)
             if msg:
                 problems.append(msg)
-            elif a is not None:
-                if z is None or a.shape != z.shape:
-                    problems.append(f"profile {key!r} has {a.size} values but z_m has "
+            elif arr is not None:
+                if z is None or arr.shape != z.shape:
+                    problems.append(f"profile {key!r} has {arr.size} values but z_m has "
                                     f"{0 if z is None else z.size}")
-                profiles[str(key)] = a
+                profiles[str(key)] = arr
         scalars: dict[str, float] = {}
         for key, value in dict(self.scalars).items():
             try:

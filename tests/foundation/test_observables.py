@@ -182,3 +182,46 @@ def test_trace_summary_rows_are_known_scalars_the_solver_produces():
     assert {o.name for o in obs} <= set(BuiltinSolverModel.scalar_names)
     # rms of a sinusoid of amplitude a is a / sqrt(2) (closed form)
     assert obs[1].value == pytest.approx(0.3 / np.sqrt(2), rel=1e-3)
+
+
+def _calibration_file(tmp_path, discrepancy: str) -> Path:
+    DataSet([_point_data()]).save(tmp_path / "d")
+    path = tmp_path / "cal.toml"
+    path.write_text(f'''
+data_folder = "d"
+[device]
+preset = "demo"
+[shape]
+family = "smooth_step"
+[likelihood]
+discrepancy = {discrepancy}
+''')
+    return path
+
+
+def test_calibration_file_sets_the_discrepancy_per_observable(tmp_path):
+    from profshape.config import load_config
+    from profshape.pipeline import build_calibration
+
+    cal = build_calibration(load_config(_calibration_file(
+        tmp_path, "{ plasma_potential = 5.0, discharge_current = 0.03 }")), tmp_path / "out",
+        progress=False)
+    lk = cal.problem.likelihood
+    assert lk.profile_discrepancy == {"plasma_potential": 5.0}
+    assert lk.scalar_discrepancy == {"discharge_current": 0.03}
+
+
+@pytest.mark.parametrize("table, match", [
+    ("{ plasma_potentail = 5.0 }", r"likelihood.discrepancy.plasma_potentail: unknown observable "
+                                   r"\(did you mean 'plasma_potential'\?\)"),
+    ("{ ion_velocity = 50.0 }", r"discrepancy_sigma_m_s"),
+    ("{ plasma_potential = -1.0 }", r"profile_discrepancy\['plasma_potential'\] must be a finite "
+                                    r"number >= 0; got -1.0"),
+])
+def test_bad_discrepancy_key_or_value_refused_naming_the_key(tmp_path, table, match):
+    from profshape.config import load_config
+    from profshape.pipeline import build_calibration
+
+    with pytest.raises(InputDataError, match=match):
+        build_calibration(load_config(_calibration_file(tmp_path, table)), tmp_path / "out",
+                          progress=False)
