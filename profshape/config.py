@@ -89,6 +89,12 @@ _SCHEMA: dict[str, Any] = {
         "weights": {"*": None},
         "discrepancy": {"*": None},  # per observable (profshape.observables)
     },
+    "closure": {  # checked in profshape.closure_config
+        "features": ((list,), False, None),
+        "coefficients": ((list,), False, None),
+        "slope_bounds": {"*": None},
+        "intercept_bounds": {"*": None},
+    },
     "search": {
         "budget": ((int,), False, 40),
         "batch_size": ((int,), False, 1),

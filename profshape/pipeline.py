@@ -381,6 +381,9 @@ def build_calibration(cfg: CalibrationConfig, out_dir: str | Path, progress: boo
     device = _device(cfg)
     dataset = _dataset(cfg)
     family = _family(cfg, device)
+    from .closure_config import closure_from_config  # [closure]: coefficients vary with the point
+
+    family, closure = closure_from_config(cfg, family, dataset.operating_points)
     model = _forward_model(cfg, device, out_dir)
     lk = cfg.section("likelihood")
     try:
@@ -396,6 +399,7 @@ def build_calibration(cfg: CalibrationConfig, out_dir: str | Path, progress: boo
             free_scale_per_point=lk["free_scale_per_point"],
             scale_bounds_log10=tuple(lk["scale_bounds_log10"]),
             discrepancy_bounds_m_s=tuple(lk["fit_discrepancy_m_s"]) if lk["fit_discrepancy_m_s"] else None,
+            closure=closure,
         )
     except ConfigError:
         raise

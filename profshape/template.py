@@ -127,6 +127,14 @@ weights = {}                      # per observable or "label/observable", e.g. {
 discrepancy = {}                  # per observable: profiles in their SI unit, scalars relative,
                                   # e.g. { plasma_potential = 5.0, thrust = 0.03 }
 
+# ------------------------------------------- coefficients that vary with the point
+# [closure]                       # without features: one profile for all points
+# features = [{ field = "background_pressure_Pa", transform = "log10", floor = 1e-5 },
+#             { field = "discharge_voltage_V" }]   # numeric operating-point fields
+# coefficients = ["transition_z_m"]               # those that get slopes (default: all)
+# slope_bounds = { transition_z_m = [-0.004, 0.004] }   # by coefficient or slope name
+# intercept_bounds = { transition_z_m = [0.02, 0.032] } # the coefficient mid-range
+
 # --------------------------------------------------------------------- the search
 [search]
 budget = 40                       # forward-model trials in all
