@@ -234,6 +234,9 @@ def _parser() -> argparse.ArgumentParser:
                       help="what the ranking sorts on (default bic)")
     cmp_.set_defaults(func=_cmd_compare)
 
+    from .validate import add_parser as add_validate_parser  # profshape validate RUN
+
+    add_validate_parser(sub)
     try:
         from .solver.command import add_parser as add_solve_parser
     except ImportError:  # pragma: no cover - solver always ships
