@@ -39,7 +39,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -118,9 +118,9 @@ def _row(w: np.ndarray, common: dict[str, Any], name: str, z: float, y: float, s
             "z_score": zscore, "inside_90": bool(abs(zscore) <= BAND_Z_90)}
 
 
-def validation_rows(dataset: DataSet, trial_predictions: list[Mapping[str, Prediction]],
+def validation_rows(dataset: DataSet, trial_predictions: Sequence[Mapping[str, Prediction]],
                     likelihood: LikelihoodSettings | None = None, *, closure: Any = None,
-                    discrepancy_sigma_m_s: list[float | None] | None = None
+                    discrepancy_sigma_m_s: Sequence[float | None] | None = None
                     ) -> tuple[pd.DataFrame, dict[str, Any]]:
     """Leave-one-point-out rows and summary from logged trial predictions.
 
@@ -152,7 +152,7 @@ def validation_rows(dataset: DataSet, trial_predictions: list[Mapping[str, Predi
     if not trial_predictions:
         raise InputDataError("validation: the trial log has no successful trial with stored "
                              "predictions; run (or resume) the calibration first.")
-    disc = discrepancy_sigma_m_s or [None] * len(trial_predictions)
+    disc = list(discrepancy_sigma_m_s or [None] * len(trial_predictions))
     rows: list[dict[str, Any]] = []
     per_point: dict[str, dict[str, Any]] = {}
     for k, held in enumerate(dataset):
@@ -254,7 +254,8 @@ def validate_run(folder: str | Path) -> dict[str, Any]:
     problem = cal.problem
     trials = read_trials(out / TRIALS_FILE)
     ok = trials[trials["status"] == "ok"] if "status" in trials else trials.iloc[:0]
-    preds, disc = [], []
+    preds: list[dict[str, Prediction]] = []
+    disc: list[float | None] = []
     for _, row in ok.iterrows():
         p = _predictions(row.get("predictions"))
         if p is None:
