@@ -51,7 +51,8 @@ from .exceptions import InputDataError
 from .forward.base import Prediction
 from .likelihood import LikelihoodSettings, evaluate_misfit, measured_profiles
 
-__all__ = ["BAND_Z_90", "VALIDATION_FILES", "add_parser", "validate_run", "validation_rows"]
+__all__ = ["BAND_Z_90", "VALIDATION_FILES", "add_parser", "print_validation", "validate_run",
+           "validation_rows"]
 
 #: Half-width of the central 90 % interval of a standard Gaussian, scipy.stats.norm.ppf(0.95).
 BAND_Z_90 = 1.6448536269514722
@@ -276,7 +277,12 @@ def validate_run(folder: str | Path) -> dict[str, Any]:
 
 
 def _cmd_validate(args: argparse.Namespace) -> int:
-    s = validate_run(args.folder)
+    print_validation(validate_run(args.folder))
+    return 0
+
+
+def print_validation(s: Mapping[str, Any]) -> None:
+    """Print a validation summary (of :func:`validate_run`)."""
     fmt = (lambda v: "n/a" if v is None else f"{v:.2f} %")  # noqa: E731
     print(f"leave-one-point-out over {len(s['points'])} points, {s['n_values']} held-out values")
     print(f"median abs. error: thrust {fmt(s['mape_thrust_percent'])}, discharge current "
@@ -286,7 +292,6 @@ def _cmd_validate(args: argparse.Namespace) -> int:
         flag = f"  EXTRAPOLATION: {info['extrapolation_reason']}" if info["extrapolation"] else ""
         print(f"  {lab}: effective sample size {info['effective_sample_size']:.1f}{flag}")
     print(f"written: {', '.join(s['files'])}")
-    return 0
 
 
 def add_parser(sub: Any) -> None:
