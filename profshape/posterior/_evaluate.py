@@ -109,6 +109,9 @@ def _prediction_json(predictions: dict[str, Any]) -> str:
             "ion_velocity_m_s": [] if v is None else np.asarray(v, dtype=float).tolist(),
             "scalars": {k: float(x) for k, x in (getattr(pred, "scalars", {}) or {}).items()},
         }
+        if getattr(pred, "profiles", None):  # profile observables besides the ion velocity
+            payload[label]["profiles"] = {k: np.asarray(x, dtype=float).tolist()
+                                          for k, x in pred.profiles.items()}
     return json.dumps(payload)
 
 

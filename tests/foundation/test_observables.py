@@ -225,3 +225,11 @@ def test_bad_discrepancy_key_or_value_refused_naming_the_key(tmp_path, table, ma
     with pytest.raises(InputDataError, match=match):
         build_calibration(load_config(_calibration_file(tmp_path, table)), tmp_path / "out",
                           progress=False)
+
+
+def test_posterior_readers_keep_the_profiles():
+    from profshape.posterior._evaluate import _prediction_json
+    from profshape.posterior.emulated import predictions_from_json
+
+    back = predictions_from_json(_prediction_json({"p": _pred(1.0)}))["p"]
+    np.testing.assert_allclose(back.profiles["plasma_potential"], _phi(ZG) + 1.0)
