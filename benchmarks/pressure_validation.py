@@ -93,7 +93,7 @@ def main() -> None:
         return "n/a" if v is None else f"{v:.2f} %"
 
     print(f"pressure scenario, budget {args.budget or 'as in pressure.toml'}; calibration "
-          f"{t_full:.0f} s")
+          f"{t_full:.0f} s (0: reused from --out)")
     print(f"leave-one-point-out median abs. error: thrust {pct(validation['mape_thrust_percent'])}"
           f", discharge current {pct(validation['mape_discharge_current_percent'])}")
     print(f"90 % band coverage of held-out values: {validation['coverage_90']:.2f} "
@@ -102,7 +102,7 @@ def main() -> None:
         f"{k} {v['effective_sample_size']:.1f}" for k, v in validation["points"].items()))
     print(f"90 % profile band width over z in [{z_phi.min():.3f}, {z_phi.max():.3f}] m "
           f"[decades]: all data {w_all:.3f}, without potential {w_vel:.3f} "
-          f"({100 * (1 - w_all / w_vel):.0f} % narrower); truth inside: {in_all:.2f} vs {in_vel:.2f}")
+          f"(narrower by {100 * (1 - w_all / w_vel):.0f} %); truth inside: {in_all:.2f} vs {in_vel:.2f}")
     print(f"closure calibration ({n_par} parameters): best reduced chi-square {best}; "
           f"<= 1.5: {best is not None and best <= 1.5}")
 
