@@ -143,6 +143,13 @@ SCHEMA: dict[str, Any] = {
         "free_scale_per_point": Key(_BOOL, False),
         "scale_bounds_log10": Key(_ARRAY, [-1.0, 1.0]),
         "weights": FREE,
+        "discrepancy": FREE,  # per observable (profshape.observables)
+    },
+    "closure": {  # checked in profshape.closure_config
+        "features": Key(_ARRAY),
+        "coefficients": Key(_ARRAY),
+        "slope_bounds": FREE,
+        "intercept_bounds": FREE,
     },
     "search": {
         **_settings_keys(SearchSettings, SEARCH_CONSTRAINTS,

@@ -14,6 +14,14 @@ parquet (``.parquet``), with these columns (units in the names):
     ``label``, ``z_m`` (axial position from the anode [m]),
     ``ion_velocity_m_s`` [m/s], ``sigma_ion_velocity_m_s`` (1-sigma [m/s]),
     optionally ``sigma_z_m`` (1-sigma position uncertainty [m]).
+``profiles``
+    Long form of any profile observable along z (see
+    :data:`profshape.observables.PROFILE_UNITS`): ``label``, ``observable``
+    (``plasma_potential`` [V], ``electron_temperature`` [eV],
+    ``plasma_density`` [m^-3], or ``ion_velocity`` [m/s]), ``z_m`` [m],
+    ``value`` (SI unit of the observable), ``sigma`` (1-sigma, same unit),
+    optionally ``sigma_z_m`` [m]. Ion velocity may be given here or in the
+    ``ion_velocity`` table, not in both for the same point.
 ``scalars``
     ``label``, ``name`` (e.g. ``discharge_current``, ``thrust``), ``value``,
     ``sigma`` (1-sigma), ``unit`` (SI: ``A``, ``N``, ...).
@@ -48,6 +56,7 @@ __all__ = [
     "DataSet",
     "IonVelocityProfile",
     "OperatingPointData",
+    "ProfileMeasurement",
     "ScalarObservable",
     "load_dataset",
     "read_ion_velocity_table",
@@ -63,6 +72,9 @@ SCALAR_UNITS: dict[str, str] = {
     "current_utilization": "-",
     "voltage_utilization": "-",
     "exit_ion_energy_eV": "eV",
+    "ion_beam_current": "A",
+    "discharge_current_rms_amplitude": "A",
+    "discharge_current_frequency": "Hz",
 }
 
 _VELOCITY_COLUMNS = ("z_m", "ion_velocity_m_s", "sigma_ion_velocity_m_s")
@@ -71,6 +83,8 @@ _POINT_COLUMNS = ("label", "discharge_voltage_V", "anode_mass_flow_kg_s", "prope
                   "magnetic_field_scale")
 _OPTIONAL_POINT_COLUMNS = ("background_pressure_Pa", "background_temperature_K")
 _SCALAR_COLUMNS = ("label", "name", "value", "sigma", "unit")
+_PROFILE_COLUMNS = ("label", "observable", "z_m", "value", "sigma")
+_OPTIONAL_PROFILE_COLUMNS = ("sigma_z_m",)
 
 #: Largest plausible axial position [m]; larger values are most likely millimetres.
 _MAX_PLAUSIBLE_Z_M = 1.0
@@ -247,6 +261,126 @@ class IonVelocityProfile:
         return pd.DataFrame(data)
 
 
+@dataclass(frozen=True, eq=False)
+class ProfileMeasurement:
+    """Measurements of one profile observable along z at one operating point.
+
+    Parameters
+    ----------
+    observable : str
+        A name of :data:`profshape.observables.PROFILE_UNITS` other than
+        ``ion_velocity`` (which has :class:`IonVelocityProfile`).
+    z_m : array_like of shape (n,)
+        Axial positions [m] from the anode.
+    value : array_like of shape (n,)
+        Measured values in the observable's SI unit.
+    sigma : array_like of shape (n,)
+        1-sigma uncertainty, > 0, same unit.
+    sigma_z_m : array_like of shape (n,), optional
+        1-sigma position uncertainty [m], >= 0.
+    source : str, default=""
+        Where the data came from (file name), used in messages.
+    rows : sequence of int, optional
+        1-based data rows in ``source``, used in messages.
+
+    Raises
+    ------
+    InputDataError
+        Unknown observable (with the closest known name), empty, non-finite,
+        sigma <= 0, duplicate positions, positions that look like millimetres,
+        negative temperatures or densities.
+    """
+
+    observable: str
+    z_m: np.ndarray
+    value: np.ndarray
+    sigma: np.ndarray
+    sigma_z_m: np.ndarray | None = None
+    source: str = ""
+    rows: tuple[int, ...] | None = field(default=None, repr=False)
+
+    def __post_init__(self) -> None:
+        from .observables import PROFILE_UNITS, unknown_profile_message
+
+        name = str(self.observable).strip()
+        src = self.source or "profile data"
+        first = self.rows[0] if self.rows else None
+        if name not in PROFILE_UNITS or name == "ion_velocity":
+            why = ("ion velocity has its own type (IonVelocityProfile)" if name == "ion_velocity"
+                   else unknown_profile_message(name))
+            raise InputDataError(f"{_where(src, first, 'observable')}: {why}; rename it.")
+        object.__setattr__(self, "observable", name)
+        cols: dict[str, Any] = {"z_m": self.z_m, "value": self.value, "sigma": self.sigma}
+        if self.sigma_z_m is not None:
+            cols["sigma_z_m"] = self.sigma_z_m
+        arrays: dict[str, np.ndarray] = {}
+        for col, raw in cols.items():
+            try:
+                a = np.asarray(raw, dtype=float).ravel()
+            except (TypeError, ValueError):
+                raise InputDataError(f"{_where(src, column=col)}: values must be numbers.") from None
+            arrays[col] = a
+        n = arrays["z_m"].size
+        if n == 0:
+            raise InputDataError(f"{_where(src)}: no {name} points (empty set).")
+        rows = tuple(self.rows) if self.rows is not None else tuple(range(1, n + 1))
+        for col, a in arrays.items():
+            if a.size != n:
+                raise InputDataError(f"{_where(src, column=col)}: has {a.size} values but z_m has {n}.")
+            bad = np.flatnonzero(~np.isfinite(a))
+            if bad.size:
+                i = bad[0]
+                raise InputDataError(f"{_where(src, rows[i], col)}: value {float(a[i])!r} is not "
+                                     "finite; give a number (remove missing measurements).")
+        checks = [("sigma", arrays["sigma"] <= 0, "uncertainty must be > 0")]
+        if "sigma_z_m" in arrays:
+            checks.append(("sigma_z_m", arrays["sigma_z_m"] < 0, "position uncertainty must be >= 0"))
+        if name in ("electron_temperature", "plasma_density"):
+            checks.append(("value", arrays["value"] < 0, f"{name} must be >= 0"))
+        for col, bad_mask, what in checks:
+            bad = np.flatnonzero(bad_mask)
+            if bad.size:
+                i = bad[0]
+                raise InputDataError(f"{_where(src, rows[i], col)}: {what}; got "
+                                     f"{float(arrays[col][i])!r} ({name}).")
+        z = arrays["z_m"]
+        if np.max(np.abs(z)) > _MAX_PLAUSIBLE_Z_M:
+            i = int(np.argmax(np.abs(z)))
+            raise InputDataError(f"{_where(src, rows[i], 'z_m')}: position {float(z[i])!r} looks "
+                                 "like millimetres; positions must be in metres (divide by 1000).")
+        order = np.argsort(z, kind="stable")
+        dup = np.flatnonzero(np.diff(z[order]) == 0)
+        if dup.size:
+            i, j = order[dup[0]], order[dup[0] + 1]
+            raise InputDataError(f"{_where(src, rows[j], 'z_m')}: {name} at position "
+                                 f"{float(z[j])!r} m repeats row {rows[i]}; keep one.")
+        arrays = {k: a[order] for k, a in arrays.items()}
+        for col, attr in (("z_m", "z_m"), ("value", "value"), ("sigma", "sigma"),
+                          ("sigma_z_m", "sigma_z_m")):
+            if col in arrays:
+                arrays[col].setflags(write=False)
+                object.__setattr__(self, attr, arrays[col])
+        object.__setattr__(self, "rows", tuple(rows[i] for i in order))
+
+    def __len__(self) -> int:
+        return int(self.z_m.size)
+
+    @property
+    def unit(self) -> str:
+        """SI unit of the observable."""
+        from .observables import PROFILE_UNITS
+
+        return PROFILE_UNITS[self.observable]
+
+    def to_frame(self) -> pd.DataFrame:
+        """Long-form rows: ``observable``, ``z_m``, ``value``, ``sigma`` (``sigma_z_m``)."""
+        data: dict[str, Any] = {"observable": self.observable, "z_m": self.z_m,
+                                "value": self.value, "sigma": self.sigma}
+        if self.sigma_z_m is not None:
+            data["sigma_z_m"] = self.sigma_z_m
+        return pd.DataFrame(data)
+
+
 @dataclass(frozen=True)
 class ScalarObservable:
     """A measured scalar, such as the discharge current.
@@ -309,11 +443,14 @@ class OperatingPointData:
     point : OperatingPoint
     ion_velocity : IonVelocityProfile, optional
     scalars : mapping of name to ScalarObservable, optional
+    profiles : mapping of observable name to ProfileMeasurement, optional
+        Profile observables other than the ion velocity (plasma potential, ...).
     """
 
     point: OperatingPoint
     ion_velocity: IonVelocityProfile | None = None
     scalars: Mapping[str, ScalarObservable] = field(default_factory=dict)
+    profiles: Mapping[str, ProfileMeasurement] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         if not isinstance(self.point, OperatingPoint):
@@ -328,10 +465,18 @@ class OperatingPointData:
                     f"ScalarObservable of that name; got {key!r} → {obs!r}."
                 )
         object.__setattr__(self, "scalars", scalars)
-        if self.ion_velocity is None and not scalars:
+        profiles = dict(self.profiles)
+        for key, meas in profiles.items():
+            if not isinstance(meas, ProfileMeasurement) or meas.observable != key:
+                raise InputDataError(
+                    f"operating point {self.point.label!r}: profiles must map each observable to "
+                    f"a ProfileMeasurement of that observable; got {key!r} → {meas!r}."
+                )
+        object.__setattr__(self, "profiles", profiles)
+        if self.ion_velocity is None and not scalars and not profiles:
             raise InputDataError(
                 f"operating point {self.point.label!r} has no measurements; give an ion-velocity "
-                "profile or at least one scalar observable."
+                "profile, another profile or at least one scalar observable."
             )
 
     @property
@@ -343,7 +488,7 @@ class OperatingPointData:
     def n_data(self) -> int:
         """Number of measured values at this point."""
         n = len(self.ion_velocity) if self.ion_velocity is not None else 0
-        return n + len(self.scalars)
+        return n + len(self.scalars) + sum(len(m) for m in self.profiles.values())
 
 
 class DataSet(Sequence[OperatingPointData]):
@@ -402,10 +547,19 @@ class DataSet(Sequence[OperatingPointData]):
         for p in self._points:
             if p.ion_velocity is not None:
                 p.ion_velocity.check_domain(z_min_m, z_max_m)
+            for meas in p.profiles.values():
+                out = np.flatnonzero((meas.z_m < z_min_m) | (meas.z_m > z_max_m))
+                if out.size:
+                    i = out[0]
+                    row = meas.rows[i] if meas.rows is not None else None
+                    raise InputDataError(
+                        f"{_where(meas.source, row, 'z_m')}: "
+                        f"{meas.observable} position {float(meas.z_m[i])!r} m is outside the model "
+                        f"domain [{z_min_m!r}, {z_max_m!r}] m; remove it or extend the domain.")
 
     # ------------------------------------------------------------------ tables
     def tables(self) -> dict[str, pd.DataFrame]:
-        """The three documented tables: operating_points, ion_velocity, scalars."""
+        """The documented tables: operating_points, ion_velocity, scalars, profiles."""
         ops = pd.DataFrame([p.point.to_dict() for p in self._points],
                            columns=[*_POINT_COLUMNS, *_OPTIONAL_POINT_COLUMNS])
         vel = [p.ion_velocity.to_frame().assign(label=p.label) for p in self._points
@@ -418,7 +572,13 @@ class DataSet(Sequence[OperatingPointData]):
              for p in self._points for s in p.scalars.values()],
             columns=list(_SCALAR_COLUMNS),
         )
-        return {"operating_points": ops, "ion_velocity": vel_df, "scalars": sca}
+        prof = [m.to_frame().assign(label=p.label) for p in self._points
+                for m in p.profiles.values()]
+        prof_df = (pd.concat(prof, ignore_index=True) if prof
+                   else pd.DataFrame(columns=list(_PROFILE_COLUMNS)))
+        prof_df = prof_df[["label", *[c for c in prof_df.columns if c != "label"]]]
+        return {"operating_points": ops, "ion_velocity": vel_df, "scalars": sca,
+                "profiles": prof_df}
 
     def save(self, folder: str | Path, format: str = "csv") -> dict[str, Path]:
         """Write the tables into ``folder`` as CSV or parquet; returns the paths.
@@ -550,14 +710,50 @@ def _find(folder: Path, stem: str) -> Path | None:
     return found[0] if found else None
 
 
+def _read_profiles(path: Path, points: Mapping[str, OperatingPoint],
+                   velocities: dict[str, IonVelocityProfile],
+                   profiles: dict[str, dict[str, ProfileMeasurement]]) -> None:
+    """Read the long-form ``profiles`` table into ``velocities`` and ``profiles``."""
+    from .observables import PROFILE_UNITS, unknown_profile_message
+
+    df = _read_table(path)
+    _check_columns(df, path, _PROFILE_COLUMNS, _OPTIONAL_PROFILE_COLUMNS)
+    df["label"] = df["label"].astype(str).str.strip()
+    df["observable"] = df["observable"].astype(str).str.strip()
+    for i, (label, name) in enumerate(zip(df["label"], df["observable"], strict=True), start=1):
+        if label not in points:
+            raise InputDataError(f"{path}, row {i}, column 'label': {label!r} is not an operating "
+                                 f"point (known: {list(points)}).")
+        if name not in PROFILE_UNITS:
+            raise InputDataError(f"{path}, row {i}, column 'observable': "
+                                 f"{unknown_profile_message(name)}; rename it.")
+    for (label, name), group in df.groupby(["label", "observable"], sort=False):
+        rows = tuple(int(r) + 1 for r in group.index)
+        sigma_z = _numeric(group, "sigma_z_m", path) if "sigma_z_m" in group.columns else None
+        if sigma_z is not None and np.all(np.isnan(sigma_z)):
+            sigma_z = None
+        if name == "ion_velocity":
+            if label in velocities:
+                raise InputDataError(
+                    f"{path}, row {rows[0]}, column 'observable': ion velocity of {label!r} is "
+                    "also in the ion_velocity table; give it in one table only.")
+            velocities[str(label)] = IonVelocityProfile(
+                _numeric(group, "z_m", path), _numeric(group, "value", path),
+                _numeric(group, "sigma", path), sigma_z, source=str(path), rows=rows)
+        else:
+            profiles[str(label)][str(name)] = ProfileMeasurement(
+                str(name), _numeric(group, "z_m", path), _numeric(group, "value", path),
+                _numeric(group, "sigma", path), sigma_z, source=str(path), rows=rows)
+
+
 def load_dataset(folder: str | Path) -> DataSet:
     """Load a data set folder (see the module docstring for the tables).
 
     Parameters
     ----------
     folder : path
-        Holds ``operating_points`` and at least one of ``ion_velocity`` and
-        ``scalars``, each as ``.csv`` or ``.parquet``.
+        Holds ``operating_points`` and at least one of ``ion_velocity``,
+        ``profiles`` and ``scalars``, each as ``.csv`` or ``.parquet``.
 
     Raises
     ------
@@ -629,13 +825,18 @@ def load_dataset(folder: str | Path) -> DataSet:
                     f"{sca_path}, row {i}, column 'name': {obs.name!r} repeats for {label!r}."
                 )
             scalars[label][obs.name] = obs
-    if vel_path is None and sca_path is None:
+    profiles: dict[str, dict[str, ProfileMeasurement]] = {lab: {} for lab in points}
+    prof_path = _find(folder, "profiles")
+    if prof_path is not None:
+        _read_profiles(prof_path, points, velocities, profiles)
+    if vel_path is None and sca_path is None and prof_path is None:
         raise InputDataError(
-            f"{folder}: no measurements; add ion_velocity.csv and/or scalars.csv."
+            f"{folder}: no measurements; add ion_velocity.csv, profiles.csv and/or scalars.csv."
         )
     try:
         return DataSet([
-            OperatingPointData(points[lab], velocities.get(lab), scalars[lab]) for lab in points
+            OperatingPointData(points[lab], velocities.get(lab), scalars[lab], profiles[lab])
+            for lab in points
         ])
     except InputDataError as exc:
         raise InputDataError(f"{folder}: {exc}") from None

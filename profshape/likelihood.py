@@ -11,8 +11,13 @@ For each measured ion velocity :math:`u_i \pm \sigma_i` at :math:`z_i \pm
 
 (position uncertainty propagated through the model's local slope, the
 "effective variance" method of Orear, Am. J. Phys. 50, 1982; plus an optional
-model-discrepancy variance :math:`\sigma_\mathrm{d}^2`). Scalars are judged
-the same way against their own sigma (plus an optional relative discrepancy).
+model-discrepancy variance :math:`\sigma_\mathrm{d}^2`). The other profile
+observables (plasma potential, electron temperature, plasma density; see
+:mod:`profshape.observables`) are judged the same way, each with its own
+discrepancy sigma (:attr:`LikelihoodSettings.profile_discrepancy`). Scalars are
+judged against their own sigma plus an optional discrepancy relative to the
+measured value, per scalar name if wished
+(:attr:`LikelihoodSettings.scalar_discrepancy`).
 With per-observable weights :math:`w`,
 
 .. math::
@@ -38,6 +43,7 @@ import dataclasses
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from typing import NamedTuple
 
 import numpy as np
 
@@ -45,7 +51,8 @@ from .data import DataSet, OperatingPointData
 from .exceptions import InputDataError
 from .forward.base import Prediction
 
-__all__ = ["LikelihoodSettings", "Misfit", "evaluate_misfit", "residual_table"]
+__all__ = ["LikelihoodSettings", "MeasuredProfile", "Misfit", "evaluate_misfit",
+           "measured_profiles", "residual_table"]
 
 _LOG_2PI = math.log(2.0 * math.pi)
 
@@ -64,6 +71,13 @@ class LikelihoodSettings:
     weights : mapping of str to float, optional
         Weight per observable, keyed by observable name (``"ion_velocity"``,
         ``"discharge_current"``, ...) or by ``"label/observable"``; default 1.
+    profile_discrepancy : mapping of str to float, optional
+        Model-discrepancy standard deviation per profile observable other than
+        the ion velocity, in its SI unit (``{"plasma_potential": 5.0}`` [V]);
+        default 0.
+    scalar_discrepancy : mapping of str to float, optional
+        Relative model discrepancy per scalar name (overrides
+        ``scalar_discrepancy_relative`` for that name).
     use_position_uncertainty : bool, default=True
         Propagate ``sigma_z_m`` through the model's local slope.
     n_fitted : int or None, default=None
@@ -77,6 +91,8 @@ class LikelihoodSettings:
     weights: Mapping[str, float] = field(default_factory=dict)
     use_position_uncertainty: bool = True
     n_fitted: int | None = None
+    profile_discrepancy: Mapping[str, float] = field(default_factory=dict)
+    scalar_discrepancy: Mapping[str, float] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         for name in ("discrepancy_sigma_m_s", "scalar_discrepancy_relative"):
@@ -90,10 +106,36 @@ class LikelihoodSettings:
                     f"likelihood: weight for {key!r} must be a finite number >= 0; got {v!r}."
                 )
         object.__setattr__(self, "weights", w)
+        from .observables import PROFILE_UNITS, unknown_profile_message
+
+        for attr in ("profile_discrepancy", "scalar_discrepancy"):
+            d = dict(getattr(self, attr))
+            for key, v in d.items():
+                if attr == "profile_discrepancy" and (key not in PROFILE_UNITS
+                                                      or key == "ion_velocity"):
+                    why = ("the ion velocity's is discrepancy_sigma_m_s" if key == "ion_velocity"
+                           else unknown_profile_message(key))
+                    raise InputDataError(f"likelihood: {attr} key {key!r}: {why}.")
+                if not (isinstance(v, (int, float)) and not isinstance(v, bool)
+                        and math.isfinite(v) and v >= 0):
+                    raise InputDataError(f"likelihood: {attr}[{key!r}] must be a finite number "
+                                         f">= 0; got {v!r}.")
+            object.__setattr__(self, attr, {str(k): float(v) for k, v in d.items()})
         if self.n_fitted is not None and (
                 isinstance(self.n_fitted, bool) or not isinstance(self.n_fitted, int | float)
                 or int(self.n_fitted) != self.n_fitted or self.n_fitted < 0):
             raise InputDataError(f"likelihood: n_fitted must be an integer >= 0; got {self.n_fitted!r}.")
+
+    def profile_discrepancy_sigma(self, observable: str) -> float:
+        """Discrepancy sigma of a profile observable in its SI unit."""
+        if observable == "ion_velocity":
+            return float(self.discrepancy_sigma_m_s)
+        return float(self.profile_discrepancy.get(observable, 0.0))
+
+    def scalar_variance(self, name: str, value: float, sigma: float) -> float:
+        """Data plus relative-discrepancy variance of a measured scalar."""
+        rel = self.scalar_discrepancy.get(name, self.scalar_discrepancy_relative)
+        return float(sigma**2 + (rel * value) ** 2)
 
     def weight(self, label: str, observable: str) -> float:
         """Weight of ``observable`` at operating point ``label``."""
@@ -166,26 +208,49 @@ def _gaussian_terms(residual: np.ndarray, variance: np.ndarray, weight: float) -
     return chi2, loglike
 
 
-def _velocity_terms(
-    data: OperatingPointData, prediction: Prediction, settings: LikelihoodSettings
+class MeasuredProfile(NamedTuple):
+    """One measured profile observable at a point (SI units)."""
+
+    observable: str
+    z_m: np.ndarray
+    value: np.ndarray
+    sigma: np.ndarray
+    sigma_z_m: np.ndarray | None
+
+
+def measured_profiles(data: OperatingPointData) -> list[MeasuredProfile]:
+    """``(observable, z_m, value, sigma, sigma_z_m)`` of each measured profile at a point:
+    the ion velocity first, then the others in the data's order."""
+    out = []
+    if data.ion_velocity is not None:
+        m = data.ion_velocity
+        out.append(MeasuredProfile("ion_velocity", m.z_m, m.velocity_m_s, m.sigma_m_s,
+                                   m.sigma_z_m))
+    for name, p in data.profiles.items():
+        out.append(MeasuredProfile(name, p.z_m, p.value, p.sigma, p.sigma_z_m))
+    return out
+
+
+def _profile_terms(
+    meas: MeasuredProfile, prediction: Prediction, settings: LikelihoodSettings,
 ) -> tuple[np.ndarray, np.ndarray] | str:
-    """Residuals and effective variances of the ion velocity, or a failure reason."""
-    meas = data.ion_velocity
-    assert meas is not None
-    if prediction.z_m is None or prediction.ion_velocity_m_s is None:
-        return "the forward model gave no ion-velocity prediction"
-    zg, ug = prediction.z_m, prediction.ion_velocity_m_s
+    """Residuals and effective variances of one profile observable, or a failure reason."""
+    name, z, value, sigma, sigma_z = meas
+    model_values = prediction.profile(name)
+    if prediction.z_m is None or model_values is None:
+        return f"the forward model gave no {name.replace('_', '-')} prediction"
+    zg, ug = prediction.z_m, model_values
     lo, hi = zg[0], zg[-1]
     tol = 1e-9 * max(abs(hi - lo), 1e-12)
-    if meas.z_m[0] < lo - tol or meas.z_m[-1] > hi + tol:
-        return (f"prediction covers z in [{lo:.6g}, {hi:.6g}] m but measurements span "
-                f"[{meas.z_m[0]:.6g}, {meas.z_m[-1]:.6g}] m")
-    model = np.interp(meas.z_m, zg, ug)
-    variance = meas.sigma_m_s**2 + settings.discrepancy_sigma_m_s**2
-    if settings.use_position_uncertainty and meas.sigma_z_m is not None:
-        slope = np.interp(meas.z_m, zg, np.gradient(ug, zg))
-        variance = variance + slope**2 * meas.sigma_z_m**2
-    return meas.velocity_m_s - model, variance
+    if z[0] < lo - tol or z[-1] > hi + tol:
+        return (f"prediction covers z in [{lo:.6g}, {hi:.6g}] m but {name} measurements span "
+                f"[{z[0]:.6g}, {z[-1]:.6g}] m")
+    model = np.interp(z, zg, ug)
+    variance = sigma**2 + settings.profile_discrepancy_sigma(name) ** 2
+    if settings.use_position_uncertainty and sigma_z is not None:
+        slope = np.interp(z, zg, np.gradient(ug, zg))
+        variance = variance + slope**2 * sigma_z**2
+    return value - model, variance
 
 
 def evaluate_misfit(
@@ -235,12 +300,13 @@ def evaluate_misfit(
         if not pred.ok:
             return Misfit.failure(f"point {label}: {pred.status}: {pred.reason}", n_data)
         point_chi2 = 0.0
-        if data.ion_velocity is not None:
-            terms = _velocity_terms(data, pred, settings)
+        for meas in measured_profiles(data):
+            name = meas.observable
+            terms = _profile_terms(meas, pred, settings)
             if isinstance(terms, str):
                 return Misfit.failure(f"point {label}: {terms}", n_data)
-            c2, ll = _gaussian_terms(*terms, settings.weight(label, "ion_velocity"))
-            per_observable[f"{label}/ion_velocity"] = c2
+            c2, ll = _gaussian_terms(*terms, settings.weight(label, name))
+            per_observable[f"{label}/{name}"] = c2
             point_chi2 += c2
             loglike_total += ll
         for name, obs in data.scalars.items():
@@ -249,7 +315,7 @@ def evaluate_misfit(
                     f"point {label}: the forward model gave no {name!r} prediction "
                     f"(it gave {sorted(pred.scalars)})", n_data)
             residual = np.array([obs.value - pred.scalars[name]])
-            variance = np.array([obs.sigma**2 + (settings.scalar_discrepancy_relative * obs.value) ** 2])
+            variance = np.array([settings.scalar_variance(name, obs.value, obs.sigma)])
             c2, ll = _gaussian_terms(residual, variance, settings.weight(label, name))
             per_observable[f"{label}/{name}"] = c2
             point_chi2 += c2
@@ -318,15 +384,14 @@ def residual_table(
         pred = predictions.get(label)
         if pred is None or not pred.ok:
             continue
-        if data.ion_velocity is not None:
-            terms = _velocity_terms(data, pred, settings)
+        for meas in measured_profiles(data):
+            name = meas.observable
+            terms = _profile_terms(meas, pred, settings)
             if not isinstance(terms, str):
                 residual, variance = terms
-                w = settings.weight(label, "ion_velocity")
-                meas = data.ion_velocity
-                for z, y, r, v in zip(meas.z_m, meas.velocity_m_s, residual, variance,
-                                      strict=True):
-                    rows.append({"label": label, "observable": "ion_velocity", "z_m": float(z),
+                w = settings.weight(label, name)
+                for z, y, r, v in zip(meas.z_m, meas.value, residual, variance, strict=True):
+                    rows.append({"label": label, "observable": name, "z_m": float(z),
                                  "measured": float(y), "model": float(y - r),
                                  "sigma_effective": float(np.sqrt(v)),
                                  "normalised_residual": float(r / np.sqrt(v)),
@@ -335,7 +400,7 @@ def residual_table(
             if name not in pred.scalars:
                 continue
             r = obs.value - float(pred.scalars[name])
-            v = obs.sigma**2 + (settings.scalar_discrepancy_relative * obs.value) ** 2
+            v = settings.scalar_variance(name, obs.value, obs.sigma)
             w = settings.weight(label, name)
             rows.append({"label": label, "observable": name, "z_m": math.nan,
                          "measured": float(obs.value), "model": float(pred.scalars[name]),

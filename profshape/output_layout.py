@@ -3,9 +3,10 @@ r"""The forward model's outputs as one vector, and the misfit computed from such
 :class:`OutputLayout` fixes the order of the outputs that the emulator
 (:class:`profshape.emulator.OutputEmulator`) models for a data set: for each
 operating point, in the data set's order, the ion velocity at the measured
-positions (measurement order) and then the scalars (the data's order);
+positions (measurement order), then each other profile observable at its
+measured positions (the data's order), and then the scalars (the data's order);
 when the position uncertainty is used (``LikelihoodSettings.use_position_uncertainty``
-and a ``sigma_z_m`` column), the model's slope ``du/dz`` at those positions
+and a ``sigma_z_m`` column), the model's slope (``du/dz`` and alike for the other profiles) at those positions
 follows, for all points, after all the values. That is exactly what
 :func:`profshape.likelihood.evaluate_misfit` uses of a prediction, so the
 vectorised misfit here is the same number:
@@ -46,9 +47,9 @@ SLOPE = "slope"
 
 @dataclass(frozen=True)
 class OutputColumn:
-    """One output: ``label``, ``observable`` (``"ion_velocity"`` or a scalar name),
-    ``kind`` (``"value"`` or ``"slope"`` [m/s per m]) and position ``z_m``
-    (NaN for scalars)."""
+    """One output: ``label``, ``observable`` (a profile observable such as
+    ``"ion_velocity"``, or a scalar name), ``kind`` (``"value"`` or ``"slope"``
+    [unit per m]) and position ``z_m`` (NaN for scalars)."""
 
     label: str
     observable: str
@@ -99,25 +100,27 @@ class OutputLayout:
         slopes: list[OutputColumn] = []
         obs, sig, wts, is_vel, sz = [], [], [], [], []
         slope_of = []  # value index of each slope column
+        from .likelihood import measured_profiles
+
         for data in dataset:
             lab = data.label
-            meas = data.ion_velocity
-            if meas is not None:
-                sigma_z_m = meas.sigma_z_m if s.use_position_uncertainty else None
-                for i, z in enumerate(meas.z_m):
-                    if sigma_z_m is not None:
-                        slopes.append(OutputColumn(lab, "ion_velocity", SLOPE, float(z)))
+            for name, zs, vals, sigmas, sigz in measured_profiles(data):
+                use_z = s.use_position_uncertainty and sigz is not None
+                disc = 0.0 if name == "ion_velocity" else s.profile_discrepancy_sigma(name)
+                for i, z in enumerate(zs):
+                    if use_z:
+                        slopes.append(OutputColumn(lab, name, SLOPE, float(z)))
                         slope_of.append(len(values))
-                    values.append(OutputColumn(lab, "ion_velocity", VALUE, float(z)))
-                    obs.append(float(meas.velocity_m_s[i]))
-                    sig.append(float(meas.sigma_m_s[i]))
-                    wts.append(s.weight(lab, "ion_velocity"))
-                    is_vel.append(True)
-                    sz.append(float(sigma_z_m[i]) if sigma_z_m is not None else 0.0)
+                    values.append(OutputColumn(lab, name, VALUE, float(z)))
+                    obs.append(float(vals[i]))
+                    sig.append(math.hypot(float(sigmas[i]), disc))  # discrepancy of other profiles
+                    wts.append(s.weight(lab, name))
+                    is_vel.append(name == "ion_velocity")
+                    sz.append(float(sigz[i]) if sigz is not None and use_z else 0.0)
             for name, sc in data.scalars.items():
                 values.append(OutputColumn(lab, name, VALUE, math.nan))
                 obs.append(float(sc.value))
-                sig.append(math.sqrt(sc.sigma**2 + (s.scalar_discrepancy_relative * sc.value) ** 2))
+                sig.append(math.sqrt(s.scalar_variance(name, sc.value, sc.sigma)))
                 wts.append(s.weight(lab, name))
                 is_vel.append(False)
                 sz.append(0.0)
@@ -125,7 +128,7 @@ class OutputLayout:
         self.n_values = len(values)
         self.n_outputs = len(self.columns)
         self.observed = np.array(obs)
-        self.sigma = np.array(sig)  # scalars: their relative discrepancy included
+        self.sigma = np.array(sig)  # all but the ion velocity: their discrepancy included
         self.weights = np.array(wts)
         self.is_velocity = np.array(is_vel, dtype=bool)
         self.sigma_z = np.array(sz)
@@ -166,6 +169,8 @@ class OutputLayout:
             does not cover the measured positions (such a trial has no misfit
             either: it is a failed trial).
         """
+        from .likelihood import measured_profiles
+
         vals: list[float] = []
         slopes: list[float] = []
         for data in self.dataset:
@@ -174,19 +179,19 @@ class OutputLayout:
             if pred is None or not pred.ok:
                 why = "missing" if pred is None else f"{pred.status}: {pred.reason}"
                 raise InputDataError(f"OutputLayout.vector: point {lab}: prediction {why}.")
-            meas = data.ion_velocity
-            if meas is not None:
-                if pred.z_m is None or pred.ion_velocity_m_s is None:
-                    raise InputDataError(f"OutputLayout.vector: point {lab}: no ion-velocity "
+            for name, zs, _v, _s, sigz in measured_profiles(data):
+                ug = pred.profile(name)
+                if pred.z_m is None or ug is None:
+                    raise InputDataError(f"OutputLayout.vector: point {lab}: no {name} "
                                          "prediction.")
-                zg, ug = pred.z_m, pred.ion_velocity_m_s
+                zg = pred.z_m
                 tol = 1e-9 * max(abs(zg[-1] - zg[0]), 1e-12)
-                if meas.z_m[0] < zg[0] - tol or meas.z_m[-1] > zg[-1] + tol:
+                if zs[0] < zg[0] - tol or zs[-1] > zg[-1] + tol:
                     raise InputDataError(f"OutputLayout.vector: point {lab}: the prediction does "
-                                         "not cover the measured positions.")
-                vals.extend(np.interp(meas.z_m, zg, ug).tolist())
-                if self.likelihood.use_position_uncertainty and meas.sigma_z_m is not None:
-                    slopes.extend(np.interp(meas.z_m, zg, np.gradient(ug, zg)).tolist())
+                                         f"not cover the measured {name} positions.")
+                vals.extend(np.interp(zs, zg, ug).tolist())
+                if self.likelihood.use_position_uncertainty and sigz is not None:
+                    slopes.extend(np.interp(zs, zg, np.gradient(ug, zg)).tolist())
             for name in data.scalars:
                 if name not in pred.scalars:
                     raise InputDataError(f"OutputLayout.vector: point {lab}: no {name!r} "
@@ -203,12 +208,7 @@ class OutputLayout:
             raw = json.loads(text) if isinstance(text, str) else None
             if not isinstance(raw, dict):
                 return None
-            preds = {lab: Prediction(d.get("status", "failed"),
-                                     None if d.get("z_m") is None else np.asarray(d["z_m"]),
-                                     None if d.get("ion_velocity_m_s") is None
-                                     else np.asarray(d["ion_velocity_m_s"]),
-                                     dict(d.get("scalars") or {}))
-                     for lab, d in raw.items()}
+            preds = {lab: Prediction.from_json_dict(d) for lab, d in raw.items()}
             return self.vector(preds)
         except (InputDataError, ValueError, TypeError, KeyError, AttributeError):
             return None

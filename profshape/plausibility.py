@@ -42,6 +42,9 @@ SCALAR_RANGES: dict[str, tuple[float, float]] = {
     "current_utilization": (0.0, 1.0),
     "voltage_utilization": (0.0, 1.0),
     "exit_ion_energy_eV": (1.0, 5000.0),
+    "ion_beam_current": (1e-3, 1e3),
+    "discharge_current_rms_amplitude": (0.0, 1e3),
+    "discharge_current_frequency": (0.0, 1e8),
 }
 #: An uncertainty this many times its value says the value is in another unit.
 MAX_RELATIVE_SIGMA = 10.0

@@ -124,6 +124,16 @@ use_position_uncertainty = true   # propagate sigma_z_m through the model's slop
 free_scale_per_point = false      # one extra log10 profile scale per operating point
 scale_bounds_log10 = [-1.0, 1.0]  # bounds of those scales
 weights = {}                      # per observable or "label/observable", e.g. { thrust = 1.0 }
+discrepancy = {}                  # per observable: profiles in their SI unit, scalars relative,
+                                  # e.g. { plasma_potential = 5.0, thrust = 0.03 }
+
+# ------------------------------------------- coefficients that vary with the point
+# [closure]                       # without features: one profile for all points
+# features = [{ field = "background_pressure_Pa", transform = "log10", floor = 1e-5 },
+#             { field = "discharge_voltage_V" }]   # numeric operating-point fields
+# coefficients = ["transition_z_m"]               # those that get slopes (default: all)
+# slope_bounds = { transition_z_m = [-0.004, 0.004] }   # by coefficient or slope name
+# intercept_bounds = { transition_z_m = [0.02, 0.032] } # the coefficient mid-range
 
 # --------------------------------------------------------------------- the search
 [search]

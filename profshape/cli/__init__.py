@@ -16,7 +16,7 @@ from collections.abc import Sequence
 
 from .._version import __version__
 from ..exceptions import CampaignFailedError, InputDataError
-from . import calibration, solve
+from . import calibration, solve, validate
 from ._common import (
     EXIT_BAD_INPUT,
     EXIT_FAILURE,
@@ -42,6 +42,7 @@ def _parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"profshape {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     calibration.add_parsers(sub)
+    validate.add_parser(sub)
     solve.add_parser(sub)
     return parser
 

@@ -36,6 +36,16 @@ def _cmd_demo(args: argparse.Namespace) -> int:
         v = getattr(args, name)
         if v is not None and v < 1:
             raise InputDataError(f"--{name} must be >= 1; got {v}.")
+    if getattr(args, "scenario", "default") != "default":  # a bundled scenario, then validation
+        from ..scenarios import run_scenario
+        from ..validate import print_validation
+
+        out = Path(args.out) if args.out else new_folder_name(f"profshape-{args.scenario}")
+        summary, validation = run_scenario(args.scenario, out, budget=args.budget, seed=args.seed,
+                                           workers=args.workers, progress=not args.quiet)
+        print_summary(summary, out)
+        print_validation(validation)
+        return EXIT_OK
     text, folder = demo_config_text(args.budget, args.seed, args.workers)
     cfg = parse_config(text, path=folder / "demo.toml", base_dir=folder)
     out = Path(args.out) if args.out else new_folder_name("profshape-demo")
@@ -106,6 +116,9 @@ def add_parsers(sub: Any) -> None:
     demo.add_argument("--seed", type=int, help="random seed (default 0)")
     demo.add_argument("--workers", type=int, help="parallel worker processes (default 2)")
     demo.add_argument("--quiet", action="store_true", help="no progress bar")
+    demo.add_argument("--scenario", default="default", choices=("default", "pressure"),
+                      help="bundled scenario: default (two voltages) or pressure (3 background "
+                           "pressures x 2 voltages, closure, then leave-one-point-out validation)")
     demo.set_defaults(func=_cmd_demo)
 
     cal = sub.add_parser("calibrate", help="calibrate as described by a TOML calibration file",

@@ -55,6 +55,11 @@ class Prediction:
         Optional per-cell outputs on the model grid (e.g. ``potential``).
     wall_time_s : float
         Wall time of the run [s].
+    profiles : dict of str to ndarray
+        Predicted profile observables other than the ion velocity
+        (``plasma_potential`` [V], ``electron_temperature`` [eV],
+        ``plasma_density`` [m^-3]; see :data:`profshape.observables.PROFILE_UNITS`),
+        each on the ``z_m`` grid.
 
     Notes
     -----
@@ -69,6 +74,7 @@ class Prediction:
     reason: str = ""
     fields: dict[str, np.ndarray] = field(default_factory=dict)
     wall_time_s: float = 0.0
+    profiles: dict[str, np.ndarray] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
         if self.status not in STATUSES:
@@ -90,6 +96,16 @@ class Prediction:
                 problems.append("z_m must be strictly increasing")
         elif (z is None) != (v is None) and not problems:
             problems.append("z_m and ion_velocity_m_s must be given together")
+        profiles: dict[str, np.ndarray] = {}
+        for key, raw in dict(self.profiles).items():
+            arr, msg = _finite_array(f"profile {key!r}", raw)
+            if msg:
+                problems.append(msg)
+            elif arr is not None:
+                if z is None or arr.shape != z.shape:
+                    problems.append(f"profile {key!r} has {arr.size} values but z_m has "
+                                    f"{0 if z is None else z.size}")
+                profiles[str(key)] = arr
         scalars: dict[str, float] = {}
         for key, value in dict(self.scalars).items():
             try:
@@ -107,6 +123,14 @@ class Prediction:
         object.__setattr__(self, "z_m", z)
         object.__setattr__(self, "ion_velocity_m_s", v)
         object.__setattr__(self, "scalars", scalars)
+        object.__setattr__(self, "profiles", profiles)
+
+    def profile(self, observable: str) -> np.ndarray | None:
+        """Predicted values of a profile observable on ``z_m`` (``ion_velocity`` included),
+        or ``None`` when the model gave none."""
+        if observable == "ion_velocity":
+            return self.ion_velocity_m_s
+        return self.profiles.get(observable)
 
     @property
     def ok(self) -> bool:
@@ -121,8 +145,8 @@ class Prediction:
         return cls(status=status, reason=str(reason), wall_time_s=wall_time_s)
 
     def to_json_dict(self) -> dict[str, Any]:
-        """JSON-ready form (for the trial log): z, ion velocity and scalars."""
-        return {
+        """JSON-ready form (for the trial log): z, ion velocity, other profiles and scalars."""
+        out: dict[str, Any] = {
             "status": self.status,
             "z_m": None if self.z_m is None else self.z_m.tolist(),
             "ion_velocity_m_s": None if self.ion_velocity_m_s is None
@@ -130,6 +154,20 @@ class Prediction:
             "scalars": dict(self.scalars),
             "reason": self.reason,
         }
+        if self.profiles:
+            out["profiles"] = {k: v.tolist() for k, v in self.profiles.items()}
+        return out
+
+    @classmethod
+    def from_json_dict(cls, d: dict[str, Any]) -> Prediction:
+        """The prediction of :meth:`to_json_dict` (a trial log's ``predictions`` cell)."""
+        return cls(d.get("status", "failed"),
+                   None if d.get("z_m") is None else np.asarray(d["z_m"], dtype=float),
+                   None if d.get("ion_velocity_m_s") is None
+                   else np.asarray(d["ion_velocity_m_s"], dtype=float),
+                   dict(d.get("scalars") or {}), str(d.get("reason", "")),
+                   profiles={k: np.asarray(v, dtype=float)
+                             for k, v in dict(d.get("profiles") or {}).items()})
 
 
 class ForwardModel(ABC):

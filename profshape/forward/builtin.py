@@ -11,6 +11,7 @@ from typing import Any
 import numpy as np
 
 from .._version import __version__
+from ..observables import FIELD_OF_PROFILE
 from ..operating_point import OperatingPoint
 from ..profile import AnomalousProfile
 from .base import ForwardModel, Prediction
@@ -27,6 +28,9 @@ SCALAR_FROM_GLOBAL = {
     "current_utilization": "current_utilization",
     "voltage_utilization": "voltage_utilization",
     "exit_ion_energy_eV": "exit_ion_energy_eV",
+    "beam_current_A": "ion_beam_current",
+    "oscillation_amplitude_A": "discharge_current_rms_amplitude",
+    "oscillation_frequency_Hz": "discharge_current_frequency",
 }
 _FIELD_COLUMNS = ("potential_V", "electron_temperature_eV", "plasma_density_m3",
                   "anomalous_frequency_per_s")
@@ -48,13 +52,17 @@ class BuiltinSolverModel(ForwardModel):
     observable names of :data:`SCALAR_FROM_GLOBAL` (``discharge_current`` [A],
     ``thrust`` [N], ...). A solver status ``"not_converged"`` or ``"failed"``
     passes through with the solver's reason. ``fields`` carries the potential,
-    electron temperature, plasma density and anomalous frequency per cell.
+    electron temperature, plasma density and anomalous frequency per cell;
+    ``profiles`` the first three under their observable names
+    (:data:`profshape.observables.FIELD_OF_PROFILE`).
     """
 
     name = "builtin-solver"
 
     #: Scalar observables this model produces (checked against the data before any run).
     scalar_names: tuple[str, ...] = tuple(SCALAR_FROM_GLOBAL.values())
+    #: Profile observables this model produces (see profshape.observables.PROFILE_UNITS).
+    profile_names: tuple[str, ...] = ("ion_velocity", *FIELD_OF_PROFILE)
 
     def __init__(self, device: Any = None, settings: Any = None) -> None:
         from ..solver import SolverSettings, demo_device
@@ -98,6 +106,7 @@ class BuiltinSolverModel(ForwardModel):
             if col in result.cells
         }
         fields = {k: v for k, v in fields.items() if np.all(np.isfinite(v))}
+        profiles = {name: fields[col] for name, col in FIELD_OF_PROFILE.items() if col in fields}
         note = "" if all(math.isfinite(v) for v in scalars.values()) else "non-finite scalar"
         return Prediction(
             status="ok",
@@ -106,4 +115,5 @@ class BuiltinSolverModel(ForwardModel):
             scalars=scalars,
             reason=note,
             fields=fields,
+            profiles=profiles,
         )

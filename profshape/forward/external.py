@@ -32,7 +32,11 @@ Outputs the program writes into the work folder
     "discharge_current" [A], "thrust" [N]),
     "ion_velocity_file": file name (optional, default "ion_velocity.csv")}``
 ``ion_velocity.csv``
-    Columns ``z_m`` [m] (increasing) and ``ion_velocity_m_s`` [m/s].
+    Columns ``z_m`` [m] (increasing) and ``ion_velocity_m_s`` [m/s]; optionally
+    other profile observables on the same positions: ``potential_V`` (plasma
+    potential [V]), ``electron_temperature_eV`` [eV] and ``plasma_density_m3``
+    [m^-3] (see :data:`profshape.observables.FIELD_OF_PROFILE`). Other columns
+    are ignored.
 
 File names read from ``output.json`` (and ``output.json`` itself) must name
 files inside the work folder; anything resolving outside it (``..``, absolute
@@ -84,6 +88,7 @@ import numpy as np
 import pandas as pd
 
 from ..exceptions import ForwardModelError, InputDataError, ModelOutputError
+from ..observables import FIELD_OF_PROFILE
 from ..operating_point import OperatingPoint
 from ..profile import AnomalousProfile
 from .base import STATUSES, ForwardModel, Prediction
@@ -490,6 +495,7 @@ class ExternalModel(ForwardModel):
         if len(scalars) > 1000:
             return fail(f"{OUTPUT_FILE}: {len(scalars)} scalars, over the limit of 1000")
         z = v = None
+        profiles: dict[str, np.ndarray] = {}
         name = spec.get("ion_velocity_file", VELOCITY_FILE)
         try:
             vel_path = _inside(folder, name)
@@ -507,6 +513,8 @@ class ExternalModel(ForwardModel):
                                 "the limit")
                 z = pd.to_numeric(table["z_m"], errors="raise").to_numpy(dtype=float)
                 v = pd.to_numeric(table["ion_velocity_m_s"], errors="raise").to_numpy(dtype=float)
+                profiles = {obs: pd.to_numeric(table[col], errors="raise").to_numpy(dtype=float)
+                            for obs, col in FIELD_OF_PROFILE.items() if col in table.columns}
             except (OSError, ValueError, KeyError, pd.errors.ParserError) as exc:
                 return fail(
                     f"{vel_path.name} unreadable: need columns z_m, ion_velocity_m_s ({exc!r})"
@@ -514,4 +522,4 @@ class ExternalModel(ForwardModel):
         elif "ion_velocity_file" in spec:
             return fail(f"{name!r} named in {OUTPUT_FILE} does not exist")
         return Prediction(status="ok", z_m=z, ion_velocity_m_s=v, scalars=scalars,
-                          reason=self._reason(spec), wall_time_s=wall)
+                          reason=self._reason(spec), wall_time_s=wall, profiles=profiles)

@@ -113,7 +113,9 @@ def predictions_from_json(text: Any) -> dict[str, Any]:
         z, v = p.get("z_m"), p.get("ion_velocity_m_s")
         out[label] = Prediction("ok", None if not z else np.asarray(z, dtype=float),
                                 None if not v else np.asarray(v, dtype=float),
-                                {k: float(x) for k, x in (p.get("scalars") or {}).items()})
+                                {k: float(x) for k, x in (p.get("scalars") or {}).items()},
+                                profiles={k: np.asarray(x, dtype=float)  # potential, ...
+                                          for k, x in (p.get("profiles") or {}).items()})
     return out
 
 

@@ -270,6 +270,12 @@ def _external_grid(cfg: CalibrationConfig, device: Any) -> np.ndarray:
     return np.linspace(z0, z1, fm["grid_points"])
 
 
+def _split_discrepancy(table: Any) -> dict[str, Any]:
+    from ..observables import split_discrepancy
+
+    return split_discrepancy(table)
+
+
 def _check_observables(cfg: CalibrationConfig, dataset: DataSet, model: ForwardModel) -> None:
     """Scalar names of the data against what the forward model can produce."""
     from ..config import did_you_mean
@@ -294,6 +300,9 @@ def _check_observables(cfg: CalibrationConfig, dataset: DataSet, model: ForwardM
                     raise cfg.error(key, f"unknown scalar {name!r}{hint}; the known ones are "
                                     f"{sorted(SCALAR_UNITS)}. Rename it, or give your program's "
                                     "name exactly as it writes it.")
+    from ..observables import check_producible  # profile observables (plasma potential, ...)
+
+    check_producible(dataset, model)
 
 
 def posterior_settings(cfg: CalibrationConfig, problem: CalibrationProblem, seed: int) -> Any:
@@ -354,6 +363,9 @@ def build_calibration(cfg: CalibrationConfig, out_dir: str | Path, progress: boo
     device = build_device(cfg)
     dataset = build_dataset(cfg)
     family = build_family(cfg, device)
+    from ..closure_config import closure_from_config  # [closure]: coefficients vary with the point
+
+    family, closure = closure_from_config(cfg, family, dataset.operating_points)
     model = build_forward_model(cfg, device, out_dir)
     lk = cfg.section("likelihood")
     try:
@@ -362,12 +374,14 @@ def build_calibration(cfg: CalibrationConfig, out_dir: str | Path, progress: boo
             scalar_discrepancy_relative=float(lk["scalar_discrepancy_relative"]),
             weights={k: float(v) for k, v in lk["weights"].items()},
             use_position_uncertainty=lk["use_position_uncertainty"],
+            **_split_discrepancy(lk.get("discrepancy") or {}),  # per observable
         )
         problem = CalibrationProblem(
             family, dataset, model, likelihood,
             free_scale_per_point=lk["free_scale_per_point"],
             scale_bounds_log10=tuple(lk["scale_bounds_log10"]),
             discrepancy_bounds_m_s=tuple(lk["fit_discrepancy_m_s"]) if lk["fit_discrepancy_m_s"] else None,
+            closure=closure,
         )
     except ConfigError:
         raise

@@ -5,7 +5,7 @@ Reads ``input.json`` and ``profile.csv`` from its work folder (see
 :mod:`profshape.forward.external`), computes an ion velocity from a simple
 Ohm's-law picture (the potential falls where the electron resistivity, taken
 as 1/profile, is high; ions gain that energy: v = sqrt(2 e dphi / M)), writes
-``output.json`` and ``ion_velocity.csv``.
+``output.json`` and ``ion_velocity.csv`` (with the plasma potential).
 
 ``--mode`` makes it misbehave for the tests: ``exit`` (exit code 3 with a
 message on stderr), ``sleep`` (start a child process, record its pid in
@@ -72,8 +72,9 @@ def main(argv=None) -> int:
     v = ion_velocity(z, values, voltage)
     with open(folder / "ion_velocity.csv", "w", newline="") as fh:
         w = csv.writer(fh)
-        w.writerow(["z_m", "ion_velocity_m_s"])
-        w.writerows(zip(z, v))
+        w.writerow(["z_m", "ion_velocity_m_s", "potential_V"])  # potential: voltage - drop
+        drop = [(vi - 300.0) ** 2 * XENON_ION_MASS_KG / (2 * E_CHARGE_C) for vi in v]
+        w.writerows(zip(z, v, [voltage - d for d in drop]))
     mdot = spec["operating_point"]["anode_mass_flow_kg_s"]
     current = 1.1 * mdot / XENON_ION_MASS_KG * E_CHARGE_C
     (folder / "output.json").write_text(json.dumps({"scalars": {"discharge_current": current}}))

@@ -33,6 +33,9 @@ SMALL: dict[str, dict[str, object]] = {
         "BUDGET": 7, "N_INITIAL": 4, "N_CELLS": 60, "NUM_RESTARTS": 2, "RAW_SAMPLES": 32,
         "SLICE_POINTS": 25, "MAP_POINTS": 12,
     },
+    "04_pressure_scenario.ipynb": {
+        "BUDGET": 8, "N_INITIAL": 6, "NUM_RESTARTS": 2, "RAW_SAMPLES": 32,
+    },
     "03_wrapping_your_own_code.ipynb": {
         "BUDGET": 6, "N_INITIAL": 4, "N_CELLS": 50, "NUM_RESTARTS": 2, "RAW_SAMPLES": 32,
     },
