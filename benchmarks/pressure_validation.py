@@ -31,10 +31,10 @@ import numpy as np
 import pandas as pd
 
 from profshape.config import parse_config
-from profshape.workflow import run_calibration
 from profshape.scenarios import scenario_config_text, scenario_folder
 from profshape.shapes import SmoothStep
 from profshape.validate import validate_run
+from profshape.workflow import run_calibration
 
 
 def _run(text: str, path: Path, out: Path) -> dict:

@@ -202,7 +202,7 @@ class BoundClosure:
                        for f, c, s in zip(closure.features, centre, span, strict=True)}
         params = []
         by_name = {p.name: p for p in family.parameters}
-        known = set()
+        known: set[str] = set()
         for coef in self.varying:
             p = by_name[coef]
             width = p.upper - p.lower

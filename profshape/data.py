@@ -49,6 +49,7 @@ import numpy as np
 import pandas as pd
 
 from .exceptions import InputDataError, ProfshapeWarning
+from .observables import SCALAR_UNITS
 from .operating_point import OperatingPoint
 
 __all__ = [
@@ -62,20 +63,6 @@ __all__ = [
     "read_ion_velocity_table",
 ]
 
-#: SI units of the scalar observables the built-in solver predicts.
-SCALAR_UNITS: dict[str, str] = {
-    "discharge_current": "A",
-    "thrust": "N",
-    "specific_impulse": "s",
-    "anode_efficiency": "-",
-    "mass_utilization": "-",
-    "current_utilization": "-",
-    "voltage_utilization": "-",
-    "exit_ion_energy_eV": "eV",
-    "ion_beam_current": "A",
-    "discharge_current_rms_amplitude": "A",
-    "discharge_current_frequency": "Hz",
-}
 
 _VELOCITY_COLUMNS = ("z_m", "ion_velocity_m_s", "sigma_ion_velocity_m_s")
 _OPTIONAL_VELOCITY_COLUMNS = ("sigma_z_m",)
@@ -242,9 +229,10 @@ class IonVelocityProfile:
         """Raise if a position lies outside the model domain [z_min_m, z_max_m] [m]."""
         outside = np.flatnonzero((self.z_m < z_min_m) | (self.z_m > z_max_m))
         if outside.size:
-            i = outside[0]
+            i = int(outside[0])
+            row = self.rows[i] if self.rows is not None else None
             raise InputDataError(
-                f"{_where(self.source, self.rows[i], 'z_m')}: position {float(self.z_m[i])!r} m is "
+                f"{_where(self.source, row, 'z_m')}: position {float(self.z_m[i])!r} m is "
                 f"outside the model domain [{z_min_m!r}, {z_max_m!r}] m ({outside.size} "
                 "point(s)); remove those points or extend the model domain."
             )
@@ -794,14 +782,16 @@ def load_dataset(folder: str | Path) -> DataSet:
         vel = _read_table(vel_path)
         _check_columns(vel, vel_path, ("label", *_VELOCITY_COLUMNS), _OPTIONAL_VELOCITY_COLUMNS)
         vel["label"] = vel["label"].astype(str).str.strip()
-        for label, group in vel.groupby("label", sort=False):
+        for key, group in vel.groupby("label", sort=False):
+            label = str(key)
             if label not in points:
-                row = int(group.index[0]) + 1
+                first = int(group.index[0]) + 1
                 raise InputDataError(
-                    f"{vel_path}, row {row}, column 'label': {label!r} is not an operating point "
+                    f"{vel_path}, row {first}, column 'label': {label!r} is not an operating point "
                     f"in {op_path.name} (known: {list(points)})."
                 )
-            velocities[label] = _velocity_from_frame(group, str(vel_path), group.index + 1)
+            velocities[label] = _velocity_from_frame(group, str(vel_path),
+                                                     [int(i) + 1 for i in group.index])
 
     scalars: dict[str, dict[str, ScalarObservable]] = {lab: {} for lab in points}
     sca_path = _find(folder, "scalars")

@@ -406,8 +406,11 @@ class _ScoreGP:
             self.ls = model.covar_module.lengthscale.detach().reshape(k, 1, -1)
             self.c = model.mean_module.constant.detach().reshape(k, 1)
             noise = model.likelihood.noise.detach().reshape(k, 1, 1)
-            self.mu = model.outcome_transform.means.detach().reshape(k)
-            self.sd = model.outcome_transform.stdvs.detach().reshape(k)
+            tf = model.outcome_transform
+            if not isinstance(tf, Standardize):  # the emulator's GPs standardise their scores
+                raise TypeError(f"expected a Standardize outcome transform; got {type(tf)}")
+            self.mu = tf.means.detach().reshape(k)
+            self.sd = tf.stdvs.detach().reshape(k)
             self.xs = x / self.ls  # (k, n, d)
             K = self._kernel(self.xs, self.xs) + noise * torch.eye(x.shape[-2], dtype=x.dtype)
             self.L = torch.linalg.cholesky(K)

@@ -43,13 +43,16 @@ import dataclasses
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field
-from typing import NamedTuple
+from typing import TYPE_CHECKING, NamedTuple
 
 import numpy as np
 
 from .data import DataSet, OperatingPointData
 from .exceptions import InputDataError
 from .forward.base import Prediction
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 __all__ = ["LikelihoodSettings", "MeasuredProfile", "Misfit", "evaluate_misfit",
            "measured_profiles", "residual_table"]
@@ -355,7 +358,7 @@ def residual_table(
     settings: LikelihoodSettings | None = None,
     *,
     discrepancy_sigma_m_s: float | None = None,
-):
+) -> pd.DataFrame:
     """Each measured value's contribution to the chi-square.
 
     Parameters

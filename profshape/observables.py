@@ -29,8 +29,23 @@ from typing import Any
 
 from .exceptions import InputDataError
 
-__all__ = ["FIELD_OF_PROFILE", "PROFILE_UNITS", "check_producible", "produced_names",
+__all__ = ["FIELD_OF_PROFILE", "PROFILE_UNITS", "SCALAR_UNITS", "check_producible", "produced_names",
            "split_discrepancy", "unknown_profile_message"]
+
+#: SI units of the scalar observables the built-in solver predicts.
+SCALAR_UNITS: dict[str, str] = {
+    "discharge_current": "A",
+    "thrust": "N",
+    "specific_impulse": "s",
+    "anode_efficiency": "-",
+    "mass_utilization": "-",
+    "current_utilization": "-",
+    "voltage_utilization": "-",
+    "exit_ion_energy_eV": "eV",
+    "ion_beam_current": "A",
+    "discharge_current_rms_amplitude": "A",
+    "discharge_current_frequency": "Hz",
+}
 
 #: Profile observables and their SI units (eV for the electron temperature).
 PROFILE_UNITS: dict[str, str] = {
@@ -80,8 +95,6 @@ def split_discrepancy(table: Any) -> dict[str, dict[str, float]]:
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             raise InputDataError(f"likelihood.discrepancy.{key}: must be a number >= 0; got "
                                  f"{value!r}.")
-        from .data import SCALAR_UNITS
-
         known = [*PROFILE_UNITS, *SCALAR_UNITS]
         near = difflib.get_close_matches(str(key), known, n=1, cutoff=0.75)
         if key not in known and near:  # a near miss of a known name is a typo

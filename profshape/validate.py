@@ -245,9 +245,9 @@ def validate_run(folder: str | Path) -> dict[str, Any]:
     InputDataError
         Not a run folder, fewer than three points, or no usable trial.
     """
+    from .trials import read_trials
     from .workflow import build_calibration, config_from_folder
     from .workflow.layout import TRIALS_FILE
-    from .trials import read_trials
 
     out = Path(folder)
     cfg = config_from_folder(out)

@@ -52,8 +52,8 @@ def run_scenario(name: str, out: str | Path, *, budget: int | None = None,
         (:func:`profshape.validate.validate_run`).
     """
     from ..config import parse_config
-    from ..workflow import run_calibration
     from ..validate import validate_run
+    from ..workflow import run_calibration
 
     text, path = scenario_config_text(name, budget, seed, workers)
     cfg = parse_config(text, path=path, base_dir=path.parent)

@@ -10,8 +10,8 @@ import pytest
 from profshape.config import parse_config
 from profshape.data import load_dataset
 from profshape.exceptions import InputDataError
-from profshape.workflow import build_calibration
 from profshape.scenarios import scenario_config_text, scenario_folder
+from profshape.workflow import build_calibration
 
 
 def test_scenario_builds_a_closure_with_twelve_parameters(tmp_path):
