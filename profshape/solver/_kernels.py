@@ -36,6 +36,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+import numpy.typing as npt
 from numba import njit
 
 from .. import constants
@@ -68,9 +69,14 @@ N_CELL_FIELDS = 12
  G_EFORCE, G_WALL_MOM, G_IZ_MOM, G_ANODE_MOM, G_BIRTH_PHI) = range(22)  # fmt: skip
 N_GLOBALS = 22
 
+# Array types of the kernel arguments (annotations only: numba types the arguments
+# from the values passed, not from these hints).
+_F64 = npt.NDArray[np.float64]
+_I64 = npt.NDArray[np.int64]
+
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _limited_slope(a, b):
+def _limited_slope(a: float, b: float) -> float:
     """Van Leer's harmonic slope limiter 2ab / (a + b), 0 at extrema (van Leer 1974).
 
     Clips less than minmod, so smooth extrema keep more of the second-order accuracy.
@@ -82,7 +88,7 @@ def _limited_slope(a, b):
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def coulomb_log_nrl(n_m3, te_eV):
+def coulomb_log_nrl(n_m3: float, te_eV: float) -> float:
     """Electron-ion Coulomb logarithm, NRL Plasma Formulary (Z = 1), floored at 1."""
     n_cm3 = n_m3 * 1e-6
     if te_eV < 10.0:
@@ -93,14 +99,17 @@ def coulomb_log_nrl(n_m3, te_eV):
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def nu_ei_nrl(n_m3, te_eV):
+def nu_ei_nrl(n_m3: float, te_eV: float) -> float:
     """Electron-ion collision frequency 2.91e-6 n[cm^-3] lnL T^-3/2 [1/s] (NRL)."""
     return 2.91e-12 * n_m3 * coulomb_log_nrl(n_m3, te_eV) / (te_eV * math.sqrt(te_eV))
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _heavy_rhs(i, nn, nb, nw, ni, gi, qi, ne, ef, kiz, nu_w, k_in, u_n, u_b, f_up, e_over_m,
-               fn, fg, fq, fnn, fnb, fnw, inv_dz):  # fmt: skip
+def _heavy_rhs(
+    i: int, nn: _F64, nb: _F64, nw: _F64, ni: _F64, gi: _F64, qi: _F64, ne: _F64, ef: _F64,
+    kiz: _F64, nu_w: _F64, k_in: _F64, u_n: float, u_b: float, f_up: float, e_over_m: float,
+    fn: _F64, fg: _F64, fq: _F64, fnn: _F64, fnb: _F64, fnw: _F64, inv_dz: float,
+) -> tuple[float, float, float, float, float, float]:  # fmt: skip
     """Right-hand sides (dn_n, dn_b, dn_w, dn_i, dg_i, dq_i)/dt of cell i, explicit part.
 
     The ions lost to the walls recombine there and are re-emitted as neutrals at the
@@ -131,7 +140,10 @@ def _heavy_rhs(i, nn, nb, nw, ni, gi, qi, ne, ef, kiz, nu_w, k_in, u_n, u_b, f_u
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _ion_fluxes(ni, gi, qi, cs, muscl, fn, fg, fq, uw, ew, sn, su, se, presheath):
+def _ion_fluxes(
+    ni: _F64, gi: _F64, qi: _F64, cs: _F64, muscl: bool, fn: _F64, fg: _F64, fq: _F64,
+    uw: _F64, ew: _F64, sn: _F64, su: _F64, se: _F64, presheath: float,
+) -> None:  # fmt: skip
     """Rusanov face fluxes of ion number, momentum/M and energy/M (fills fn, fg, fq).
 
     Density, velocity and the mean energy per ion e_i = q_i / n (over M) are
@@ -192,7 +204,10 @@ def _ion_fluxes(ni, gi, qi, cs, muscl, fn, fg, fq, uw, ew, sn, su, se, presheath
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _neutral_fluxes(nn, nb, nw, u_n, u_b, fnn, fnb, fnw, muscl):
+def _neutral_fluxes(
+    nn: _F64, nb: _F64, nw: _F64, u_n: float, u_b: float, fnn: _F64, fnb: _F64, fnw: _F64,
+    muscl: bool,
+) -> None:  # fmt: skip
     """Upwind neutral face fluxes with van Leer-limited linear reconstruction.
 
     fnn[1..n] (anode gas, moving downstream), fnb[0..n-1] (ingested gas, moving
@@ -220,7 +235,7 @@ def _neutral_fluxes(nn, nb, nw, u_n, u_b, fnn, fnb, fnw, muscl):
 
 
 @njit(cache=True, inline="always", fastmath=_FM)
-def _ion_energy_floor(ni, gi, qi, i, warm):
+def _ion_energy_floor(ni: _F64, gi: _F64, qi: _F64, i: int, warm: bool) -> None:
     """Keep q_i >= 0; without the energy equation (warm False) q_i = n u^2 / 2."""
     if not warm:
         qi[i] = 0.5 * gi[i] * gi[i] / ni[i]
@@ -230,21 +245,24 @@ def _ion_energy_floor(ni, gi, qi, i, warm):
 
 @njit(cache=True, fastmath=_FM, nogil=True)
 def march(
-    nn, nb, nw, ni, gi, qi, te, sheath,  # state (modified in place) [m^-3 x4, m^-2 s^-1,
-    # m^-1 s^-2 (ion energy density / M), eV, V]
-    dz, area, ion_mass, u_n, u_b, f_up, gamma_in, gamma_bg, v_d, te_cath,
-    omega_ce, nu_anom, wall_frac, wall_rate_factor,
-    w_inv_tab, w_pow_tab, w_slope_tab,
-    rate_t0, rate_inv_dt, k_iz_tab, k_loss_tab, k_en_tab,
-    cex_a, cex_b, k_elastic, v_n_thermal,
-    n_floor, te_floor, te_ceiling, cfl, dt_max, muscl, rk2, warm, u_guard,
-    fall_min, fall_max, fall_time_s,
-    t_start, t_end, sample_dt, chunk_dt,
-    acc,  # (n_chunks, N_CELL_FIELDS, N) time-weighted sums per chunk, modified in place
-    acc_g,  # (n_chunks, N_GLOBALS) time-weighted sums of global quantities per chunk
-    samples,  # (n_samples,) discharge current samples [A] from t_start on
-    hit_kinds,  # (3,) int64: density-floor, T_e-floor and T_e-ceiling hits, incremented
-):  # fmt: skip
+    nn: _F64, nb: _F64, nw: _F64, ni: _F64, gi: _F64, qi: _F64, te: _F64, sheath: _F64,
+    # state (modified in place) [m^-3 x4, m^-2 s^-1, m^-1 s^-2 (ion energy density / M),
+    # eV, V]
+    dz: float, area: float, ion_mass: float, u_n: float, u_b: float, f_up: float,
+    gamma_in: float, gamma_bg: float, v_d: float, te_cath: float,
+    omega_ce: _F64, nu_anom: _F64, wall_frac: _F64, wall_rate_factor: float,
+    w_inv_tab: _F64, w_pow_tab: _F64, w_slope_tab: _F64,
+    rate_t0: float, rate_inv_dt: float, k_iz_tab: _F64, k_loss_tab: _F64, k_en_tab: _F64,
+    cex_a: float, cex_b: float, k_elastic: float, v_n_thermal: float,
+    n_floor: float, te_floor: float, te_ceiling: float, cfl: float, dt_max: float,
+    muscl: bool, rk2: bool, warm: bool, u_guard: float,
+    fall_min: float, fall_max: float, fall_time_s: float,
+    t_start: float, t_end: float, sample_dt: float, chunk_dt: float,
+    acc: _F64,  # (n_chunks, N_CELL_FIELDS, N) time-weighted sums per chunk, modified in place
+    acc_g: _F64,  # (n_chunks, N_GLOBALS) time-weighted sums of global quantities per chunk
+    samples: _F64,  # (n_samples,) discharge current samples [A] from t_start on
+    hit_kinds: _I64,  # (3,) int64: density-floor, T_e-floor and T_e-ceiling hits, incremented
+) -> tuple[int, int, float, int, int, int]:  # fmt: skip
     """Advance the state from t_start to t_end; accumulate time integrals.
 
     Returns

@@ -170,7 +170,7 @@ def point_from_mapping(mapping: Mapping[str, Any], where: str = "operating_point
     mapping = _mapping(mapping, where)
     _check_keys(mapping, _POINT_KEYS, where)
     base = demo_operating_points()[0].to_dict()
-    kwargs = {}
+    kwargs: dict[str, Any] = {}  # str for label and propellant, float for the rest
     for key in _POINT_KEYS:
         value = mapping.get(key, base[key])
         if key in ("label", "propellant"):

@@ -132,18 +132,20 @@ import math
 import time
 
 import numpy as np
+import numpy.typing as npt
 import pandas as pd
 from scipy import constants
 
 from ..exceptions import InputDataError
 from ..operating_point import OperatingPoint
 from ..profile import AnomalousProfile, electron_gyrofrequency
+from ..propellants import Propellant
 from . import _kernels
 from .device import Device
 from .ion_neutral import CHARGE_EXCHANGE_FITS, langevin_rate
 from .magnetic import TabulatedField
-from .rates import _supported, rate_set
-from .results import SolverResult
+from .rates import RateSet, _supported, rate_set
+from .results import SolverResult, SolverStatus
 from .settings import SolverSettings
 from .walls import PRESHEATH_DENSITY_FACTOR, secondary_yield
 
@@ -192,7 +194,9 @@ def _check_inputs(device: object, point: object, profile: object, settings: obje
         )
 
 
-def _failed(reason: str, z: np.ndarray | None, t0: float, extra: dict | None = None) -> SolverResult:
+def _failed(
+    reason: str, z: np.ndarray | None, t0: float, extra: dict[str, float | bool | str] | None = None
+) -> SolverResult:
     g: dict[str, float | bool | str] = {
         "status": "failed",
         "converged": False,
@@ -205,7 +209,9 @@ def _failed(reason: str, z: np.ndarray | None, t0: float, extra: dict | None = N
     return SolverResult("failed", reason, cells, g)
 
 
-def _initial_state(z, device, gamma_in, u_n, v_max):
+def _initial_state(
+    z: np.ndarray, device: Device, gamma_in: float, u_n: float, v_max: float
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     lch = device.channel_length_m
     s = 0.5 * (1.0 + np.tanh((z - 0.8 * lch) / (0.15 * lch)))
     nn = gamma_in / u_n * (1.0 - 0.9 * s)
@@ -269,7 +275,9 @@ def solve(
         return _failed(f"internal error: {type(exc).__name__}: {exc}", z, t0)
 
 
-def _anomalous(profile: AnomalousProfile, z: np.ndarray, b: np.ndarray):
+def _anomalous(
+    profile: AnomalousProfile, z: np.ndarray, b: np.ndarray
+) -> tuple[npt.NDArray[np.float64] | None, str]:
     """Anomalous frequency on z, or (None, reason) if the profile is unusable."""
     n = z.size
     try:
@@ -292,7 +300,15 @@ def _anomalous(profile: AnomalousProfile, z: np.ndarray, b: np.ndarray):
 class _Case:
     """Everything the kernel needs on one grid."""
 
-    def __init__(self, device, point, profile, settings, prop, n: int) -> None:
+    def __init__(
+        self,
+        device: Device,
+        point: OperatingPoint,
+        profile: AnomalousProfile,
+        settings: SolverSettings,
+        prop: Propellant,
+        n: int,
+    ) -> None:
         sets = settings
         self.settings = sets
         self.device = device
@@ -331,13 +347,25 @@ class _Case:
         self.k_elastic = scale * langevin_rate(prop)
         self.hit_kinds = np.zeros(3, dtype=np.int64)
 
-    def initial_state(self):
+    def initial_state(self) -> list[npt.NDArray[np.float64]]:
         nn, ni, gi, te = _initial_state(self.z, self.device, self.gamma_in, self.u_n, self.v_max)
         nb = np.full(self.n, self.gamma_bg / self.u_b if self.gamma_bg > 0.0 else 0.0)
         qi = 0.5 * gi * gi / ni  # cold ions at the start
         return [nn, nb, np.zeros(self.n), ni, gi, qi, te, np.zeros(1)]
 
-    def march(self, state, t, t_end, chunk_dt, acc, acc_g, samples):
+    def march(
+        self,
+        state: list[npt.NDArray[np.float64]],
+        t: float,
+        t_end: float,
+        chunk_dt: float,
+        acc: npt.NDArray[np.float64],
+        acc_g: npt.NDArray[np.float64],
+        samples: npt.NDArray[np.float64],
+    ) -> tuple[int, int, float, int, int, int]:
+        """March ``state`` (modified in place) from t to t_end; see :func:`_kernels.march`."""
+        if self.nu_anom is None:
+            raise RuntimeError(f"march called on a case with an unusable profile: {self.problem}")
         sets, r = self.settings, self.rates
         nn, nb, nw, ni, gi, qi, te, sheath = state
         return _kernels.march(
@@ -365,7 +393,9 @@ _ANODE_FALL_MIN_TE = -1.0
 _ANODE_FALL_TIME_S = 2e-7
 
 
-def _wall_tables(material, constant_yield, ion_mass, mass, rates):
+def _wall_tables(
+    material: str, constant_yield: float, ion_mass: float, mass: float, rates: RateSet
+) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64], npt.NDArray[np.float64]]:
     """Wall terms tabulated on the rate tables' T_e grid (per unit wall_frac * rate factor).
 
     Returns 1 / (1 - sigma), the wall power per electron
@@ -381,14 +411,21 @@ def _wall_tables(material, constant_yield, ion_mass, mass, rates):
     per = 2.0 * inv1m + np.maximum(log_ratio + np.log(1.0 - sigma), 0.0)
     power = np.sqrt(constants.e * t / mass) * t * per  # the kernel's c_s uses the atom mass
     slope = np.gradient(power, t)
-    return tuple(np.ascontiguousarray(x) for x in (inv1m, power, slope))
+    return np.ascontiguousarray(inv1m), np.ascontiguousarray(power), np.ascontiguousarray(slope)
 
 
-def _new_acc(n_chunks: int, n: int):
+def _new_acc(n_chunks: int, n: int) -> tuple[npt.NDArray[np.float64], npt.NDArray[np.float64]]:
     return np.zeros((n_chunks, _kernels.N_CELL_FIELDS, n)), np.zeros((n_chunks, _kernels.N_GLOBALS))
 
 
-def _warm_start(device, point, profile, settings, prop, fine: _Case):
+def _warm_start(
+    device: Device,
+    point: OperatingPoint,
+    profile: AnomalousProfile,
+    settings: SolverSettings,
+    prop: Propellant,
+    fine: _Case,
+) -> list[npt.NDArray[np.float64]] | None:
     """March a coarser grid through the start-up transient; state on the fine grid or None."""
     n_coarse = fine.n // settings.warmup_coarsening
     if settings.warmup_coarsening == 1 or settings.warmup_time_s <= 0.0 or n_coarse < 20:
@@ -405,7 +442,16 @@ def _warm_start(device, point, profile, settings, prop, fine: _Case):
     return [*out, state[7].copy()]
 
 
-def _solve(device, point, profile, settings, prop, z, b, t0) -> SolverResult:
+def _solve(
+    device: Device,
+    point: OperatingPoint,
+    profile: AnomalousProfile,
+    settings: SolverSettings,
+    prop: Propellant,
+    z: np.ndarray,
+    b: np.ndarray,
+    t0: float,
+) -> SolverResult:
     case = _Case(device, point, profile, settings, prop, z.size)
     if case.nu_anom is None:
         return _failed(case.problem, z, t0)
@@ -534,7 +580,9 @@ def _periods(samples: np.ndarray, dt: float) -> tuple[float, float, float, float
     return std, p2p, freq, float(max(crossings.size - 1, 0))
 
 
-def _spans(acc_g, samples, c_end: int, plan: _Plan, settings: SolverSettings):
+def _spans(
+    acc_g: np.ndarray, samples: np.ndarray, c_end: int, plan: _Plan, settings: SolverSettings
+) -> tuple[list[int] | None, list[int] | None, int, float, str]:
     """The last n_average_windows + 1 spans ending at c_end, as chunk boundaries.
 
     Returns (bounds, cycle_bounds, n_cycles_per_span, scale, message); bounds
@@ -579,7 +627,14 @@ def _spans(acc_g, samples, c_end: int, plan: _Plan, settings: SolverSettings):
     return cycle_bounds[::m], cycle_bounds, m, 1.0, ""
 
 
-def _convergence(acc, acc_g, samples, c_end: int, plan: _Plan, settings: SolverSettings):
+def _convergence(
+    acc: np.ndarray,
+    acc_g: np.ndarray,
+    samples: np.ndarray,
+    c_end: int,
+    plan: _Plan,
+    settings: SolverSettings,
+) -> tuple[tuple[int, int, int, float] | None, bool, str]:
     """Convergence test at chunk c_end; returns (span or None, ok, reason).
 
     span = (first chunk, end chunk, cycles, relative statistical uncertainty)
@@ -647,8 +702,12 @@ def _convergence(acc, acc_g, samples, c_end: int, plan: _Plan, settings: SolverS
     )
 
 
-def _assemble(acc_all, g_all, samples_all, span, plan, converged, reason, device, point, prop,
-              z, case, settings, t_sim, steps, t0) -> SolverResult:  # fmt: skip
+def _assemble(
+    acc_all: np.ndarray, g_all: np.ndarray, samples_all: np.ndarray,
+    span: tuple[int, int, int, float], plan: _Plan, converged: bool, reason: str,
+    device: Device, point: OperatingPoint, prop: Propellant, z: np.ndarray, case: _Case,
+    settings: SolverSettings, t_sim: float, steps: int, t0: float,
+) -> SolverResult:  # fmt: skip
     e = constants.e
     G = _kernels
     n = z.size
@@ -776,7 +835,7 @@ def _assemble(acc_all, g_all, samples_all, span, plan, converged, reason, device
     bad_cols = [c for c in cells.columns if not np.all(np.isfinite(cells[c].to_numpy()))]
     if bad_glob or bad_cols:
         return _failed(f"non-finite averages in {bad_glob + bad_cols}", z, t0)
-    status = "ok" if converged else "not_converged"
+    status: SolverStatus = "ok" if converged else "not_converged"
     if converged and std > _OSCILLATION_THRESHOLD * abs(current):
         status = "oscillating"
         reason = (

@@ -8,7 +8,10 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
-__all__ = ["CELL_COLUMNS", "GLOBAL_DESCRIPTIONS", "SolverResult"]
+__all__ = ["CELL_COLUMNS", "GLOBAL_DESCRIPTIONS", "SolverResult", "SolverStatus"]
+
+#: The outcome of one solver run (see :class:`SolverResult`).
+SolverStatus = Literal["ok", "oscillating", "not_converged", "failed"]
 
 #: Per-cell output columns (time averages over the averaging window) and units.
 CELL_COLUMNS: dict[str, str] = {
@@ -115,7 +118,7 @@ class SolverResult:
         ``"time_s"`` and ``"discharge_current_A"`` over the averaging window.
     """
 
-    status: Literal["ok", "oscillating", "not_converged", "failed"]
+    status: SolverStatus
     reason: str
     cells: pd.DataFrame
     globals: dict[str, float | bool | str]
