@@ -17,10 +17,10 @@ does not load torch.
 
 from __future__ import annotations
 
-from importlib import import_module
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
 
 from ..exceptions import PosteriorCheckWarning
+from ..lazy_exports import lazy_exports
 
 if TYPE_CHECKING:
     from .bands import PosteriorBands, posterior_bands, profile_band
@@ -56,14 +56,4 @@ _WHERE = {
     "PosteriorSettings": ".settings",
 }
 
-
-def __getattr__(name: str) -> Any:
-    if name in _WHERE:
-        value = getattr(import_module(_WHERE[name], __name__), name)
-        globals()[name] = value
-        return value
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-
-
-def __dir__() -> list[str]:
-    return sorted(set(globals()) | set(__all__))
+__getattr__, __dir__ = lazy_exports(__name__, _WHERE, __all__, globals())

@@ -7,8 +7,9 @@ torch and botorch.
 
 from __future__ import annotations
 
-from importlib import import_module
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
+
+from ..lazy_exports import lazy_exports
 
 if TYPE_CHECKING:
     from .engine import Observation, Proposal, Search
@@ -36,14 +37,4 @@ _WHERE = {
     "SearchSpace": ".space",
 }
 
-
-def __getattr__(name: str) -> Any:
-    if name in _WHERE:
-        value = getattr(import_module(_WHERE[name], __name__), name)
-        globals()[name] = value
-        return value
-    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-
-
-def __dir__() -> list[str]:
-    return sorted(set(globals()) | set(__all__))
+__getattr__, __dir__ = lazy_exports(__name__, _WHERE, __all__, globals())
