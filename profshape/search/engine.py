@@ -8,15 +8,15 @@ executor and the trial log.
 
 from __future__ import annotations
 
-import contextlib
 import math
-from collections.abc import Iterator, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 import torch
 
+from .._threads import torch_threads as _torch_threads
 from ..exceptions import InputDataError
 from ..output_layout import OutputLayout
 from .acquisition import make_acquisition, optimize_acquisition
@@ -57,20 +57,6 @@ MIN_OK_FOR_MODEL = 2
 LOG_FLOOR = 1e-6
 
 SOURCES = ("initial", "proposal", "user", "resumed")
-
-
-@contextlib.contextmanager
-def _torch_threads(n: int | None) -> Iterator[None]:
-    """Run torch with ``n`` intra-op threads inside the block (``None``: unchanged)."""
-    if n is None:
-        yield
-        return
-    before = torch.get_num_threads()
-    torch.set_num_threads(n)
-    try:
-        yield
-    finally:
-        torch.set_num_threads(before)
 
 
 @dataclass
@@ -508,7 +494,41 @@ class Search:
             seed = derived_seed(self.settings.seed, "proposal", self._next_trial)
             with torch.random.fork_rng():
                 torch.manual_seed(seed)
+                if bounds is not None:
+                    u_ok, y_ok = self._fit_local(bounds)
                 return self._optimize(q, pending_u, u_ok, y_ok, seed, bounds), kind
+
+    def _fit_local(self, bounds: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Refit the objective GP on the trials near a trust region (TuRBO's local model).
+
+        The trials inside the box doubled about its centre, and at least the
+        ``resolved_n_initial(d)`` nearest ones (lengthscale-scaled distance to the
+        best trial): a model standardised on these resolves the variation near
+        the best trial, which a global model standardised on the whole range of
+        the objective treats as noise (its noise floor is a fixed fraction of the
+        outcome variance). The local fit starts from the default hyperparameters
+        (it depends on the local trials only) and leaves the warm start of the
+        next global fit alone.
+        """
+        u_ok, y_ok = self._train
+        centre = self.best().u
+        half = 0.5 * (bounds[1] - bounds[0])
+        lo, hi = centre - 2.0 * half, centre + 2.0 * half
+        inside = np.all((u_ok >= lo - 1e-12) & (u_ok <= hi + 1e-12), axis=1)
+        kernel = self.objective_model_.covar_module
+        ls = getattr(kernel, "base_kernel", kernel).lengthscale.detach().cpu().numpy().reshape(-1)
+        dist = np.linalg.norm((u_ok - centre) / ls, axis=1)
+        nearest = np.argsort(dist, kind="stable")[: self.n_initial]
+        keep = np.zeros(len(u_ok), dtype=bool)
+        keep[nearest] = True
+        keep |= inside
+        if keep.all():
+            return u_ok, y_ok  # the region spans every trial: the global model is local
+        u_loc, y_loc = u_ok[keep], y_ok[keep]
+        self.objective_model_ = fit_objective_model(
+            u_loc, y_loc, max_attempts=self.settings.max_fit_attempts)
+        self.model_ = combined_model(self.objective_model_, self.feasibility_model_)
+        return u_loc, y_loc
 
     def _propose_composite(self, q: int, pending_u: np.ndarray) -> tuple[np.ndarray, str]:
         with _torch_threads(self.settings.torch_threads):
