@@ -14,9 +14,9 @@ pytest process (session fixtures are rebuilt) and the script prints a table
 of pass counts per test. Margins (fraction of the tolerance used) of the
 search tests are printed by ``tests/search/sweep_seeds.py``.
 
-The default selection is every test whose assertion depends on a search or
-sampler outcome (the inventory in ``tests/REFERENCES.md``, section
-"Seed sweeps").
+The default selection (``DEFAULT``) is every test whose assertion depends on
+a search or sampler outcome; ``tests/SEED_SWEEPS.md`` lists them and the last
+sweep's figures.
 """
 
 from __future__ import annotations
@@ -32,14 +32,17 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parent.parent
 ENV = "PROFSHAPE_TEST_SEED_SHIFT"
 
-#: Tests whose assertions depend on a search or sampler outcome.
+#: Tests whose assertions depend on a search or sampler outcome. The two test-function
+#: searches and the synthetic-truth calibration are swept with their margins by
+#: ``tests/search/sweep_seeds.py`` and left out here (add them by naming them).
 DEFAULT = [
     "tests/search/test_engine.py",
     "tests/search/test_composite.py",
     "tests/search/test_trust_region.py",
     "tests/search/test_acquisition.py",
-    "tests/forward/test_builtin.py::test_synthetic_truth_recovered",
     "tests/posterior",
+    "--deselect", "tests/search/test_engine.py::test_branin_within_one_percent",
+    "--deselect", "tests/search/test_engine.py::test_hartmann6_within_five_percent",
 ]
 
 
@@ -48,7 +51,8 @@ DEFAULT = [
 SPAN = 1000
 #: Functions whose explicit ``seed=`` argument is shifted too, by module.
 DRAWS = {
-    "profshape.posterior": ("posterior_bands", "predict_scalars", "emulated_bands"),
+    "profshape.posterior": ("posterior_bands", "predict_scalars"),
+    "profshape.posterior.bands": ("emulated_bands",),
     "profshape.posterior.sampler": ("run_ensemble",),
 }
 
@@ -88,7 +92,9 @@ class SeedShift:
         for module, names in DRAWS.items():
             mod = importlib.import_module(module)
             for name in names:
-                fn = getattr(mod, name)
+                fn = getattr(mod, name, None)
+                if fn is None:
+                    continue
 
                 def wrapped(*a, _fn=fn, **kw):
                     if "seed" in kw:
@@ -117,17 +123,17 @@ def main() -> None:
     ap.add_argument("--shifts", default="0-9")
     ap.add_argument("--child", type=int, default=None, help=argparse.SUPPRESS)
     ap.add_argument("tests", nargs="*")
-    args = ap.parse_args()
-    tests = args.tests or DEFAULT
+    args, extra = ap.parse_known_args()
+    given = [*args.tests, *extra]  # test paths and pytest options
     if args.child is not None:
-        _child(args.child, tests)
+        _child(args.child, given or DEFAULT)
         return
     lo, _, hi = args.shifts.partition("-")
     shifts = range(int(lo), int(hi or lo) + 1)
     table: dict[str, list[str]] = {}
     for k in shifts:
         t0 = time.perf_counter()
-        out = subprocess.run([sys.executable, __file__, "--child", str(k), *tests],
+        out = subprocess.run([sys.executable, __file__, "--child", str(k), "--", *given],
                              capture_output=True, text=True, cwd=ROOT, env=os.environ.copy())
         line = [x for x in out.stdout.splitlines() if x.startswith("@@")]
         res = json.loads(line[-1][2:]) if line else {}

@@ -33,10 +33,14 @@ def _load(path: Path, name: str):
     return mod
 
 
+#: Keyword arguments of ``check_synthetic_truth`` (``--truth-z``, ``--target``); empty: the test's.
+SYNTHETIC: dict = {}
+
+
 def synthetic_truth(seed: int) -> str:
     mod = _load(HERE.parent / "forward" / "test_builtin.py", "_tb")
     with tempfile.TemporaryDirectory() as tmp:
-        res, margins = mod.check_synthetic_truth(Path(tmp), seed=seed)
+        res, margins = mod.check_synthetic_truth(Path(tmp), seed=seed, **SYNTHETIC)
     return (f"best reduced chi2 {res.best_reduced_chi2:.3g} after {res.n_trials} trials; "
             "error / tolerance " + ", ".join(f"{k} {v:.2f}" for k, v in margins.items()))
 
@@ -74,7 +78,16 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--seeds", default="0-9")
     ap.add_argument("--only", default="")
+    ap.add_argument("--truth-z", type=float, default=None,
+                    help="synthetic truth's transition position, m (default: the test's)")
+    ap.add_argument("--target", type=float, default=-1.0,
+                    help="synthetic search's target reduced chi-square (0: none; default: "
+                         "the test's)")
     args = ap.parse_args()
+    if args.truth_z is not None:
+        SYNTHETIC["truth_z_m"] = args.truth_z
+    if args.target >= 0:
+        SYNTHETIC["target"] = args.target or None
     lo, _, hi = args.seeds.partition("-")
     seeds = range(int(lo), int(hi or lo) + 1)
     torch.set_num_threads(1)
