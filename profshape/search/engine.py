@@ -511,23 +511,24 @@ class Search:
         next global fit alone.
         """
         u_ok, y_ok = self._train
-        centre = self.best().u
+        best, model = self.best(), self.objective_model_
+        assert best is not None and model is not None  # a trust region needs both
+        centre = best.u
         half = 0.5 * (bounds[1] - bounds[0])
         lo, hi = centre - 2.0 * half, centre + 2.0 * half
         inside = np.all((u_ok >= lo - 1e-12) & (u_ok <= hi + 1e-12), axis=1)
-        kernel = self.objective_model_.covar_module
+        kernel: Any = model.covar_module
         ls = getattr(kernel, "base_kernel", kernel).lengthscale.detach().cpu().numpy().reshape(-1)
         dist = np.linalg.norm((u_ok - centre) / ls, axis=1)
-        nearest = np.argsort(dist, kind="stable")[: self.n_initial]
-        keep = np.zeros(len(u_ok), dtype=bool)
-        keep[nearest] = True
-        keep |= inside
+        keep = inside.copy()
+        keep[np.argsort(dist, kind="stable")[: self.n_initial]] = True
         if keep.all():
             return u_ok, y_ok  # the region spans every trial: the global model is local
         u_loc, y_loc = u_ok[keep], y_ok[keep]
-        self.objective_model_ = fit_objective_model(
-            u_loc, y_loc, max_attempts=self.settings.max_fit_attempts)
-        self.model_ = combined_model(self.objective_model_, self.feasibility_model_)
+        local: Any = fit_objective_model(u_loc, y_loc,
+                                         max_attempts=self.settings.max_fit_attempts)
+        self.objective_model_ = local
+        self.model_ = combined_model(local, self.feasibility_model_)
         return u_loc, y_loc
 
     def _propose_composite(self, q: int, pending_u: np.ndarray) -> tuple[np.ndarray, str]:
