@@ -119,7 +119,7 @@ def test_small_region_proposes_from_a_local_model_of_the_nearby_trials():
     # spread of the trials, the GP of a trust-region proposal is fitted to the trials
     # near the region (at least the design size), standardised on them
     s, boxes = _drive("trust_region", budget=26)
-    last_trial, kind, box = boxes[-1]
+    last_trial, kind, _ = boxes[-1]
     assert kind == TRUST_REGION
     n_ok = sum(o.ok for o in s.observations[:last_trial])
     n_fit = s.objective_model_.train_inputs[0].shape[0]
