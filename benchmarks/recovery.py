@@ -273,12 +273,20 @@ class Counter:
 
     def __init__(self, problem, budget):
         self.problem, self.budget, self.history, self.outcomes = problem, budget, [], []
+        self.rows: list[dict] = []  # the trial log the posterior stage samples from
 
     def outcome(self, u):
         if len(self.history) >= self.budget:
             raise BudgetExhausted
-        out = self.problem.evaluate(self.problem.from_unit(np.clip(u, 0, 1)))
+        u = np.clip(np.asarray(u, dtype=float), 0, 1)
+        out = self.problem.evaluate(self.problem.from_unit(u))
         self.history.append(out.misfit.reduced_chi2 if out.ok else math.inf)
+        row = {f"u__{n}": float(v) for n, v in zip(self.problem.names, u)}
+        row.update(status="ok" if out.ok else "failed",
+                   log_likelihood=out.misfit.log_likelihood if out.ok else -math.inf,
+                   chi2=out.misfit.chi2 if out.ok else math.inf,
+                   reduced_chi2=out.misfit.reduced_chi2 if out.ok else math.inf)
+        self.rows.append(row)
         return out
 
     def __call__(self, u):
@@ -371,7 +379,46 @@ METHODS = {
 }
 
 
-def _task(key: str, method: str, seed: int, n_cells: int) -> dict:
+#: Central level of the profile band whose coverage of the truth is reported.
+BAND_LEVEL = 0.90
+
+
+def posterior_stage(case: Case, problem, rows: list[dict], seed: int) -> dict:
+    """Sample the posterior from a search's trials with default settings and score it.
+
+    Returns the fraction of positions (200 along the domain) where the truth's
+    profile lies inside the posterior's 90 % pointwise band, whether the
+    goodness-of-fit check of the best trial failed (the "this family or model
+    cannot match the data" flag), and the forward runs the posterior stage spent.
+    """
+    import pandas as pd
+
+    from profshape.posterior import PosteriorSettings, sample_posterior
+    from profshape.posterior.bands import profile_band
+    from profshape.posterior.verdicts import goodness_of_fit
+
+    trials = pd.DataFrame(rows)
+    ok = trials[trials["status"] == "ok"]
+    best = ok.loc[ok["chi2"].idxmin()]
+    dof = int(np.rint(best["chi2"] / best["reduced_chi2"])) if best["reduced_chi2"] > 0 else 1
+    flagged = not goodness_of_fit(float(best["chi2"]), dof).passed
+    post = sample_posterior(problem, trials, PosteriorSettings(seed=seed))
+    device = DEVICES[case.device]
+    z = np.linspace(0.0, device.domain_length_m, 200)
+    draws = post.samples[list(problem.family.names)].to_numpy(dtype=float)
+    pick = np.random.default_rng(seed).choice(len(draws), min(len(draws), 400), replace=False)
+    values = np.array([problem.family.profile(c)(z) for c in draws[pick]])
+    band = profile_band(np.log10(values), z, levels=(BAND_LEVEL,))
+    truth_family = _family(device, case.truth_family, case.truth_options)
+    b = truth_family.bounds
+    truth = np.log10(truth_family.profile(b[:, 0] + np.asarray(case.truth_u)
+                                          * (b[:, 1] - b[:, 0]))(z))
+    lo, hi = band[f"lower_{BAND_LEVEL:g}"].to_numpy(), band[f"upper_{BAND_LEVEL:g}"].to_numpy()
+    return dict(coverage90=float(np.mean((truth >= lo) & (truth <= hi))), flagged=flagged,
+                posterior_runs=int(post.diagnostics.get("n_forward_runs", 0)))
+
+
+def _task(key: str, method: str, seed: int, n_cells: int, posterior: bool = False) -> dict:
     import torch
 
     torch.set_num_threads(1)
@@ -386,10 +433,15 @@ def _task(key: str, method: str, seed: int, n_cells: int) -> dict:
     hist = np.array([*c.history[:budget], math.inf])
     best = np.minimum.accumulate(hist)
     hit = np.flatnonzero(best <= target)
-    return dict(case=key, method=method, seed=seed, budget=budget, target=target, truth=truth,
-                best=float(best[-1]), runs=int(hit[0]) + 1 if hit.size else budget + 1,
-                success=bool(hit.size), n_runs=len(c.history), wall=time.perf_counter() - t0,
-                cpu=time.process_time() - c0)
+    out = dict(case=key, method=method, seed=seed, budget=budget, target=target, truth=truth,
+               best=float(best[-1]), runs=int(hit[0]) + 1 if hit.size else budget + 1,
+               success=bool(hit.size), n_runs=len(c.history), wall=time.perf_counter() - t0,
+               cpu=time.process_time() - c0)
+    if posterior and getattr(c, "rows", None):
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            out.update(posterior_stage(case, problem, c.rows, seed))
+    return out
 
 
 def main() -> None:
@@ -402,6 +454,9 @@ def main() -> None:
     ap.add_argument("--jobs", type=int, default=2)
     ap.add_argument("--quick", action="store_true",
                     help="cases A1, B2, C2, C4; seed 0; composite and trust_region")
+    ap.add_argument("--no-posterior", action="store_true",
+                    help="skip the posterior stage after the composite search (90 %% band "
+                         "coverage, wrong-family flag, posterior forward runs)")
     ap.add_argument("--list", action="store_true", help="print the cases and exit")
     args = ap.parse_args()
     if args.list:
@@ -423,7 +478,8 @@ def main() -> None:
     t0 = time.perf_counter()
     jobs = [(k, m, s) for k in keys for s in seeds for m in methods]
     with ProcessPoolExecutor(args.jobs, mp_context=multiprocessing.get_context("spawn")) as ex:
-        futs = [ex.submit(_task, k, m, s, args.n_cells) for k, m, s in jobs]
+        futs = [ex.submit(_task, k, m, s, args.n_cells,
+                          m == "composite" and not args.no_posterior) for k, m, s in jobs]
         rows = []
         for f in futs:
             r = f.result()
@@ -458,6 +514,29 @@ def main() -> None:
         print(f"{k + tag:<5}{d:>3}{r0['budget']:>7}{r0['truth']:>7.2f}{r0['target']:>7.2f}  "
               + "".join(f"{c:>22}" for c in cells))
     print("(* truth outside the fitted family)")
+    post_rows = [r for r in rows if "coverage90" in r]
+    if post_rows:
+        print(f"\nposterior stage after the composite search (default settings), medians over "
+              f"seeds: fraction of positions where the truth's profile lies inside the "
+              f"{BAND_LEVEL:.0%} band / seeds whose best fit was flagged 'cannot match' / "
+              "forward runs of the posterior stage")
+        cov_in, flag_out = [], []
+        for k in keys:
+            rr = [r for r in post_rows if r["case"] == k]
+            if not rr:
+                continue
+            case = CASE_BY_KEY[k]
+            cov = float(np.median([r["coverage90"] for r in rr]))
+            nflag = sum(r["flagged"] for r in rr)
+            runs = float(np.median([r["posterior_runs"] for r in rr]))
+            (cov_in if case.in_family else flag_out).append(cov if case.in_family
+                                                            else nflag == len(rr))
+            print(f"  {k + ('' if case.in_family else '*'):<5} coverage {cov:5.2f}   flagged "
+                  f"{nflag}/{len(rr)}   posterior runs {runs:g}")
+        if cov_in:
+            print(f"  mean coverage over in-family cases {np.mean(cov_in):.2f}")
+        if flag_out:
+            print(f"  wrong-family cases flagged on every seed: {sum(flag_out)}/{len(flag_out)}")
     print("\nover cases: cases solved (majority of seeds) / median of the per-case median runs "
           "/ mean CPU per run")
     for m in methods:

@@ -43,6 +43,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from .._threads import pinned_threads
 from ..exceptions import InputDataError
 from ._evaluate import DrawRun, evaluate_many, runs_to_frame
 from .basins import find_basins, pool_by_basin
@@ -250,6 +251,7 @@ def _check_dims(problem: PosteriorProblem, settings: PosteriorSettings) -> None:
         )
 
 
+@pinned_threads(1)
 def sample_posterior(
     problem: PosteriorProblem,
     trials: pd.DataFrame,
@@ -293,6 +295,8 @@ def sample_posterior(
 
     Notes
     -----
+    Runs torch with one intra-op thread (restored afterwards), as the search
+    does, so a seed repeats its draws on the same machine.
     Forward runs made: at most ``forward_budget`` with the surrogate method (each
     runs every operating point; ``diagnostics["forward_runs_by_use"]`` says on
     what); ``n_walkers * (n_steps + 1)`` more with the exact method.

@@ -8,9 +8,8 @@ executor and the trial log.
 
 from __future__ import annotations
 
-import contextlib
 import math
-from collections.abc import Iterator, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -20,6 +19,7 @@ from botorch.acquisition import AcquisitionFunction
 from botorch.models import SingleTaskGP
 from botorch.models.model import Model
 
+from .._threads import torch_threads as _torch_threads
 from ..emulator import OutputEmulator
 from ..exceptions import ConfigError, InputDataError
 from ..output_layout import OutputLayout
@@ -61,20 +61,6 @@ MIN_OK_FOR_MODEL = 2
 LOG_FLOOR = 1e-6
 
 SOURCES = ("initial", "proposal", "user", "resumed")
-
-
-@contextlib.contextmanager
-def _torch_threads(n: int | None) -> Iterator[None]:
-    """Run torch with ``n`` intra-op threads inside the block (``None``: unchanged)."""
-    if n is None:
-        yield
-        return
-    before = torch.get_num_threads()
-    torch.set_num_threads(n)
-    try:
-        yield
-    finally:
-        torch.set_num_threads(before)
 
 
 @dataclass
@@ -529,7 +515,42 @@ class Search:
             seed = derived_seed(self.settings.seed, "proposal", self._next_trial)
             with torch.random.fork_rng():
                 torch.manual_seed(seed)
+                if bounds is not None:
+                    u_ok, y_ok = self._fit_local(bounds)
                 return self._optimize(q, pending_u, u_ok, y_ok, seed, bounds), kind
+
+    def _fit_local(self, bounds: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Refit the objective GP on the trials near a trust region (TuRBO's local model).
+
+        The trials inside the box doubled about its centre, and at least the
+        ``resolved_n_initial(d)`` nearest ones (lengthscale-scaled distance to the
+        best trial): a model standardised on these resolves the variation near
+        the best trial, which a global model standardised on the whole range of
+        the objective treats as noise (its noise floor is a fixed fraction of the
+        outcome variance). The local fit starts from the default hyperparameters
+        (it depends on the local trials only) and leaves the warm start of the
+        next global fit alone.
+        """
+        u_ok, y_ok = self._train
+        best, model = self.best(), self.objective_model_
+        assert best is not None and model is not None  # a trust region needs both
+        centre = best.u
+        half = 0.5 * (bounds[1] - bounds[0])
+        lo, hi = centre - 2.0 * half, centre + 2.0 * half
+        inside = np.all((u_ok >= lo - 1e-12) & (u_ok <= hi + 1e-12), axis=1)
+        kernel: Any = model.covar_module
+        ls = getattr(kernel, "base_kernel", kernel).lengthscale.detach().cpu().numpy().reshape(-1)
+        dist = np.linalg.norm((u_ok - centre) / ls, axis=1)
+        keep = inside.copy()
+        keep[np.argsort(dist, kind="stable")[: self.n_initial]] = True
+        if keep.all():
+            return u_ok, y_ok  # the region spans every trial: the global model is local
+        u_loc, y_loc = u_ok[keep], y_ok[keep]
+        local: Any = fit_objective_model(u_loc, y_loc,
+                                         max_attempts=self.settings.max_fit_attempts)
+        self.objective_model_ = local
+        self.model_ = combined_model(local, self.feasibility_model_)
+        return u_loc, y_loc
 
     def _propose_composite(self, q: int, pending_u: np.ndarray) -> tuple[np.ndarray, str]:
         with _torch_threads(self.settings.torch_threads):

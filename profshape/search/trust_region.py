@@ -18,6 +18,14 @@ around the best trial. The region starts after a warm-up of global batches
 choice) so that it is centred on a best trial the model-based search has
 already looked for; warm-up batches leave the counters alone.
 
+As in TuRBO, a trust-region proposal uses a local model: the objective GP
+refitted to the trials near the region (inside the box doubled about its
+centre, and at least the initial-design size of nearest trials), standardised
+on them. A global GP standardised on the whole range of the objective has a
+noise floor that is a fixed fraction of that range and so cannot resolve the
+small differences near the best trial that the region is there to refine
+(see ``Search._fit_local``).
+
 The state is a pure function of the finished trials, their batches and the
 kind of each proposal batch, so it is recomputed, never stored: a resumed
 search has the same state as the uninterrupted one.

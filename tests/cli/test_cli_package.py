@@ -15,7 +15,7 @@ PACKAGE = Path(profshape.__file__).parent
 def test_every_command_is_registered():
     sub = next(a for a in _parser()._actions if a.dest == "command")
     assert set(sub.choices) == {"demo", "calibrate", "resume", "report", "init", "export",
-                                "compare", "solve"}
+                                "compare", "validate", "solve"}
 
 
 def test_no_command_prints_help_and_says_bad_input(capsys):

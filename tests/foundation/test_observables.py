@@ -228,8 +228,10 @@ def test_bad_discrepancy_key_or_value_refused_naming_the_key(tmp_path, table, ma
 
 
 def test_posterior_readers_keep_the_profiles():
-    from profshape.posterior._evaluate import _prediction_json
+    import json
+
     from profshape.posterior.emulated import predictions_from_json
 
-    back = predictions_from_json(_prediction_json({"p": _pred(1.0)}))["p"]
+    # the trial log's predictions JSON (profshape.trials.trial_row) for search and posterior
+    back = predictions_from_json(json.dumps({"p": _pred(1.0).to_json_dict()}))["p"]
     np.testing.assert_allclose(back.profiles["plasma_potential"], _phi(ZG) + 1.0)

@@ -33,10 +33,14 @@ def _load(path: Path, name: str):
     return mod
 
 
+#: Keyword arguments of ``check_synthetic_truth`` (``--truth-z``, ``--target``); empty: the test's.
+SYNTHETIC: dict = {}
+
+
 def synthetic_truth(seed: int) -> str:
     mod = _load(HERE.parent / "forward" / "test_builtin.py", "_tb")
     with tempfile.TemporaryDirectory() as tmp:
-        res, margins = mod.check_synthetic_truth(Path(tmp), seed=seed)
+        res, margins = mod.check_synthetic_truth(Path(tmp), seed=seed, **SYNTHETIC)
     return (f"best reduced chi2 {res.best_reduced_chi2:.3g} after {res.n_trials} trials; "
             "error / tolerance " + ", ".join(f"{k} {v:.2f}" for k, v in margins.items()))
 
@@ -67,14 +71,64 @@ def hartmann6(seed: int) -> str:
     return f"best {s.best().value:.4f}; gap / allowed {gap:.2f}"
 
 
-CHECKS = {"synthetic_truth": synthetic_truth, "branin": branin, "hartmann6": hartmann6}
+def posterior_band(seed: int) -> str:
+    """tests/posterior/test_bands.py::test_profile_band_matches_closed_form with the
+    fixture's sampler seed 5 + 1000 seed and the bands' seed 3 + 1000 seed."""
+    import warnings
+
+    from scipy import stats
+
+    sys.path.insert(0, str(HERE.parent.parent))
+    from profshape.posterior import PosteriorSettings, posterior_bands, sample_posterior
+    from tests.posterior._linear import (
+        GAIN_M_S,
+        design_matrix,
+        exact_posterior,
+        make_problem,
+        make_trials,
+    )
+
+    problem, _ = make_problem(np.array([-1.0, 0.4]), seed=3)
+    trials = make_trials(problem, seed=1)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        post = sample_posterior(problem, trials, PosteriorSettings(
+            method="exact", n_walkers=16, n_steps=2500, burn_in=300, n_check_draws=4,
+            seed=5 + 1000 * seed))
+        prof = posterior_bands(problem, post, levels=(0.68, 0.95), n_draws=0,
+                               seed=3 + 1000 * seed).profile
+    mean, cov = exact_posterior(problem)
+    basis = design_matrix(prof["z_m"].to_numpy(), 1) / GAIN_M_S
+    sd = np.sqrt(np.einsum("ij,jk,ik->i", basis, cov, basis))
+    margins = {}
+    for level in (0.68, 0.95):
+        half = 0.5 * (np.log10(prof[f"upper_{level:g}"]) - np.log10(prof[f"lower_{level:g}"]))
+        q = stats.norm.ppf(0.5 + level / 2)
+        margins[f"width {level:g}"] = float(np.max(np.abs(half / (q * sd) - 1)) / 0.15)
+    margins["median"] = float(np.max(np.abs(np.log10(prof["median"]) - basis @ mean))
+                              / (0.15 * sd.max()))
+    assert max(margins.values()) <= 1.0, margins
+    return "error / tolerance " + ", ".join(f"{k} {v:.2f}" for k, v in margins.items())
+
+
+CHECKS = {"synthetic_truth": synthetic_truth, "branin": branin, "hartmann6": hartmann6,
+          "posterior_band": posterior_band}
 
 
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--seeds", default="0-9")
     ap.add_argument("--only", default="")
+    ap.add_argument("--truth-z", type=float, default=None,
+                    help="synthetic truth's transition position, m (default: the test's)")
+    ap.add_argument("--target", type=float, default=-1.0,
+                    help="synthetic search's target reduced chi-square (0: none; default: "
+                         "the test's)")
     args = ap.parse_args()
+    if args.truth_z is not None:
+        SYNTHETIC["truth_z_m"] = args.truth_z
+    if args.target >= 0:
+        SYNTHETIC["target"] = args.target or None
     lo, _, hi = args.seeds.partition("-")
     seeds = range(int(lo), int(hi or lo) + 1)
     torch.set_num_threads(1)

@@ -114,6 +114,22 @@ def test_engine_proposes_inside_the_box_and_records_the_kind():
     assert {g.kind_of(o.trial) for o in g.observations if o.source == "proposal"} == {GLOBAL}
 
 
+def test_small_region_proposes_from_a_local_model_of_the_nearby_trials():
+    # TuRBO's local model (Eriksson et al. 2019): once the region is smaller than the
+    # spread of the trials, the GP of a trust-region proposal is fitted to the trials
+    # near the region (at least the design size), standardised on them
+    s, boxes = _drive("trust_region", budget=26)
+    last_trial, kind, _ = boxes[-1]
+    assert kind == TRUST_REGION
+    n_ok = sum(o.ok for o in s.observations[:last_trial])
+    n_fit = s.objective_model_.train_inputs[0].shape[0]
+    assert s.n_initial <= n_fit < n_ok
+    # the region's centre, the best trial before the proposal, is among the fitted trials
+    best = min((o for o in s.observations[:last_trial] if o.ok), key=lambda o: o.value)
+    x = s.objective_model_.train_inputs[0].numpy()
+    assert np.any(np.all(np.isclose(x, best.u), axis=1))
+
+
 def test_warmup_proposals_are_global_then_the_region_starts():
     # default warm-up 2 * d = 4 global proposals after the design (design choice, no source)
     assert SearchSettings(budget=3).resolved_trust_region_warmup(2) == 4
