@@ -16,7 +16,9 @@ from the best of ``raw_samples`` random points).
 
 from __future__ import annotations
 
+import contextlib
 import warnings
+from collections.abc import Iterator
 from typing import Any
 
 import numpy as np
@@ -33,7 +35,7 @@ from linear_operator.utils.warnings import NumericalWarning
 
 from .surrogate import DTYPE, FEASIBILITY_THRESHOLD
 
-__all__ = ["make_acquisition", "optimize_acquisition"]
+__all__ = ["make_acquisition", "optimize_acquisition", "quiet_seeded"]
 
 
 def _objective_output(samples: torch.Tensor, X: torch.Tensor | None = None) -> torch.Tensor:
@@ -105,6 +107,19 @@ def make_acquisition(
     )
 
 
+@contextlib.contextmanager
+def quiet_seeded(seed: int) -> Iterator[None]:
+    """Context for one acquisition optimisation: torch's random state forked and seeded
+    with ``seed`` (restored afterwards), and botorch's optimisation warnings silenced
+    (restarts that stop early are retried by botorch itself)."""
+    with torch.random.fork_rng(), warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        warnings.simplefilter("ignore", OptimizationWarning)
+        warnings.simplefilter("ignore", NumericalWarning)
+        torch.manual_seed(seed)
+        yield
+
+
 def optimize_acquisition(
     acq: AcquisitionFunction,
     dim: int,
@@ -132,12 +147,7 @@ def optimize_acquisition(
         box = torch.stack([torch.zeros(dim, dtype=DTYPE), torch.ones(dim, dtype=DTYPE)])
     else:
         box = torch.as_tensor(np.asarray(bounds, dtype=float).reshape(2, dim), dtype=DTYPE)
-    with torch.random.fork_rng(), warnings.catch_warnings():
-        # restarts that stop early are retried by botorch itself; keep the log quiet
-        warnings.simplefilter("ignore", RuntimeWarning)
-        warnings.simplefilter("ignore", OptimizationWarning)
-        warnings.simplefilter("ignore", NumericalWarning)
-        torch.manual_seed(seed)
+    with quiet_seeded(seed):
         cand, val = optimize_acqf(
             acq,
             bounds=box,

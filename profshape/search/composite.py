@@ -43,7 +43,6 @@ point of another basin, as the emulator sees it.
 from __future__ import annotations
 
 import math
-import warnings
 from collections.abc import Mapping, Sequence
 from typing import Any
 
@@ -52,16 +51,15 @@ import torch
 from botorch.acquisition import AcquisitionFunction
 from botorch.acquisition.logei import qLogExpectedImprovement
 from botorch.acquisition.objective import GenericMCObjective
-from botorch.exceptions.warnings import OptimizationWarning
 from botorch.models import SingleTaskGP
 from botorch.optim import optimize_acqf
 from botorch.sampling import SobolQMCNormalSampler
-from linear_operator.utils.warnings import NumericalWarning
 from scipy.stats import qmc
 from torch import Tensor
 
 from ..emulator import OutputEmulator
 from ..output_layout import OutputLayout
+from .acquisition import quiet_seeded
 from .surrogate import DTYPE, FEASIBILITY_THRESHOLD
 
 __all__ = [
@@ -270,11 +268,7 @@ def propose_composite(acq: CompositeAcquisition, dim: int, q: int, *, u_ok: np.n
         vals = _evaluate(acq, pts)
         vals = np.where(np.isfinite(vals), vals, -np.inf)
         start = pts[np.argsort(-vals)[:num_restarts]]
-        with torch.random.fork_rng(), warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)
-            warnings.simplefilter("ignore", OptimizationWarning)
-            warnings.simplefilter("ignore", NumericalWarning)
-            torch.manual_seed(s)
+        with quiet_seeded(s):
             cand, _ = optimize_acqf(
                 acq, bounds=torch.as_tensor(box, dtype=DTYPE), q=1, num_restarts=len(start),
                 batch_initial_conditions=torch.as_tensor(start[:, None, :], dtype=DTYPE),
