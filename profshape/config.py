@@ -35,7 +35,7 @@ from .validation import (
 )
 
 __all__ = ["FIGURE_FORMATS", "MAXIMA", "SCHEMA", "CalibrationConfig", "Key", "did_you_mean",
-           "load_config", "one_based", "parse_config"]
+           "load_config", "parse_config"]
 
 #: Stated maxima of size-like settings, checked where the file enters (the memory or
 #: time a value beyond them would take is never what was meant; common practice, no
@@ -196,7 +196,6 @@ SCHEMA: dict[str, Any] = {
         "figures": Key(_ARRAY, ["png", "svg"]),
     },
 }
-_SCHEMA = SCHEMA  # the former private name
 
 #: One ``[[operating_points]]`` (or ``[[posterior.predict]]``) table.
 POINT_SCHEMA: dict[str, Any] = {
@@ -305,11 +304,6 @@ def _location(path: Path, text: str, key: str) -> str:
     if shown != key:
         where.append("arrays counted from 1")
     return f"{path}: key {shown!r}" + (f" ({'; '.join(where)})" if where else "")
-
-
-def one_based(key: str) -> str:
-    """``key`` with array indices counted from 1 (``operating_points[0]`` -> ``[1]``)."""
-    return _one_based(key)
 
 
 def _check_key(value: Any, spec: Key, dotted: str, cfg: CalibrationConfig) -> Any:
